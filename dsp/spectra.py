@@ -1,0 +1,3 @@
+"""Placeholder: being written."""
+
+__all__: list[str] = []
