@@ -129,7 +129,7 @@ class Chain:
     >>> import numpy as np
     >>> from dsp import Channel, Gain
     >>> out = Chain([Gain(2.0)]).apply(Channel(np.ones(4), 4.0))
-    >>> out.data[0], out.history[0]["op"]
+    >>> float(out.data[0]), out.history[0]["op"]
     (2.0, 'gain')
     """
 
