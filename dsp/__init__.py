@@ -26,29 +26,31 @@ Errors
 
 from . import advice, analysis, campaign, conditioning, demo, evaluation, filters, io, motion, quality
 from . import resample, session, spectra, steps, units, weighting
-from ._version import __version__
-from .advice import *  # noqa: F403
-from .analysis import *  # noqa: F403
-from .campaign import *  # noqa: F403
-from .channel import Channel, Recording
-from .conditioning import *  # noqa: F403
-from .errors import SigtuneError, SigtuneWarning
-from .evaluation import *  # noqa: F403
-from .filters import *  # noqa: F403
-from .io import *  # noqa: F403
-from .motion import *  # noqa: F403
-from .quality import *  # noqa: F403
-from .resample import *  # noqa: F403
-from .session import *  # noqa: F403
-from .spectra import *  # noqa: F403
-from .steps import *  # noqa: F403
-from .units import *  # noqa: F403
-from .weighting import *  # noqa: F403
 
-__all__ = sorted(
-    {"__version__", "Channel", "Recording", "SigtuneError", "SigtuneWarning"}
-    | set(advice.__all__) | set(analysis.__all__) | set(campaign.__all__) | set(conditioning.__all__)
-    | set(evaluation.__all__) | set(filters.__all__) | set(io.__all__) | set(motion.__all__)
-    | set(quality.__all__) | set(resample.__all__) | set(session.__all__) | set(spectra.__all__)
-    | set(steps.__all__) | set(units.__all__) | set(weighting.__all__)
-)
+# Captured before the star imports below, which rebind some names (``resample`` the function
+# shadows ``resample`` the module inside this namespace).
+_PUBLIC_MODULES = (advice, analysis, campaign, conditioning, demo, evaluation, filters, io, motion,
+                   quality, resample, session, spectra, steps, units, weighting)
+
+from ._version import __version__  # noqa: E402
+from .advice import *  # noqa: E402,F403
+from .analysis import *  # noqa: E402,F403
+from .campaign import *  # noqa: E402,F403
+from .channel import Channel, Recording  # noqa: E402
+from .conditioning import *  # noqa: E402,F403
+from .demo import *  # noqa: E402,F403
+from .errors import SigtuneError, SigtuneWarning  # noqa: E402
+from .evaluation import *  # noqa: E402,F403
+from .filters import *  # noqa: E402,F403
+from .io import *  # noqa: E402,F403
+from .motion import *  # noqa: E402,F403
+from .quality import *  # noqa: E402,F403
+from .resample import *  # noqa: E402,F403
+from .session import *  # noqa: E402,F403
+from .spectra import *  # noqa: E402,F403
+from .steps import *  # noqa: E402,F403
+from .units import *  # noqa: E402,F403
+from .weighting import *  # noqa: E402,F403
+
+__all__ = sorted({"__version__", "Channel", "Recording", "SigtuneError", "SigtuneWarning"}
+                 .union(*(m.__all__ for m in _PUBLIC_MODULES)))

@@ -118,12 +118,7 @@ def convert_units(values, from_unit: str, to_unit: str):
     >>> convert_units(1.0, "in/s", "mm/s")
     25.4
     """
-    src, dst = unit_info(from_unit, "from_unit"), unit_info(to_unit, "to_unit")
-    if src.quantity != dst.quantity:
-        raise SigtuneError(
-            f"cannot convert {src.symbol} ({src.quantity}) to {dst.symbol} ({dst.quantity}); "
-            f"units of {src.quantity}: {', '.join(units_for(src.quantity))}", "to_unit")
-    factor = conversion_factor(src.symbol, dst.symbol)
+    factor = conversion_factor(from_unit, to_unit)
     if np.isscalar(values):
         return float(values) * factor
     return np.asarray(values) * factor
@@ -132,6 +127,10 @@ def convert_units(values, from_unit: str, to_unit: str):
 def conversion_factor(from_unit: str, to_unit: str) -> float:
     """Return the factor that multiplies values in ``from_unit`` into ``to_unit``."""
     src, dst = unit_info(from_unit, "from_unit"), unit_info(to_unit, "to_unit")
+    if src.quantity != dst.quantity:
+        raise SigtuneError(
+            f"cannot convert {src.symbol} ({src.quantity}) to {dst.symbol} ({dst.quantity}); "
+            f"units of {src.quantity}: {', '.join(units_for(src.quantity))}", "to_unit")
     if src.symbol == dst.symbol:
         return 1.0
     # Divide before multiplying back so that exact pairs such as in/s -> mm/s stay exact.

@@ -127,6 +127,9 @@ def main(argv: list[str] | None = None) -> int:
     except (FileNotFoundError, IsADirectoryError, PermissionError) as err:
         print(f"sigtune {args.command}: error: {err.filename}: {err.strerror}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except BrokenPipeError:  # output piped into e.g. `head`, which closed early: not an error
+        sys.stderr.close()
+        return EXIT_OK
 
 
 if __name__ == "__main__":  # pragma: no cover

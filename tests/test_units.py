@@ -96,3 +96,10 @@ def test_calibration_to_another_unit():
 def test_bad_sensitivity_is_refused(sens, unit, message):
     with pytest.raises(SigtuneError, match=message):
         sensitivity_factor(sens, unit)
+
+
+def test_conversion_factor_refuses_units_of_another_quantity():
+    from dsp.units import conversion_factor
+
+    with pytest.raises(SigtuneError, match=r"cannot convert g \(acceleration\) to Pa \(pressure\)"):
+        conversion_factor("g", "Pa")
