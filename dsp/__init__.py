@@ -24,17 +24,18 @@ Errors
     SigtuneError (a ValueError), SigtuneWarning
 """
 
-from . import advice, analysis, campaign, conditioning, demo, evaluation, filters, io, motion, quality
-from . import resample, session, spectra, steps, units, weighting
+from . import advice, analysis, bands, campaign, conditioning, demo, evaluation, filters, io, motion
+from . import quality, resample, session, severity, spectra, steps, units, weighting, windows
 
 # Captured before the star imports below, which rebind some names (``resample`` the function
 # shadows ``resample`` the module inside this namespace).
-_PUBLIC_MODULES = (advice, analysis, campaign, conditioning, demo, evaluation, filters, io, motion,
-                   quality, resample, session, spectra, steps, units, weighting)
+_PUBLIC_MODULES = (advice, analysis, bands, campaign, conditioning, demo, evaluation, filters, io, motion,
+                   quality, resample, session, severity, spectra, steps, units, weighting, windows)
 
 from ._version import __version__  # noqa: E402
 from .advice import *  # noqa: E402,F403
 from .analysis import *  # noqa: E402,F403
+from .bands import *  # noqa: E402,F403
 from .campaign import *  # noqa: E402,F403
 from .channel import Channel, Recording  # noqa: E402
 from .conditioning import *  # noqa: E402,F403
@@ -47,10 +48,12 @@ from .motion import *  # noqa: E402,F403
 from .quality import *  # noqa: E402,F403
 from .resample import *  # noqa: E402,F403
 from .session import *  # noqa: E402,F403
+from .severity import *  # noqa: E402,F403
 from .spectra import *  # noqa: E402,F403
 from .steps import *  # noqa: E402,F403
 from .units import *  # noqa: E402,F403
 from .weighting import *  # noqa: E402,F403
+from .windows import *  # noqa: E402,F403
 
 __all__ = sorted({"__version__", "Channel", "Recording", "SigtuneError", "SigtuneWarning"}
                  .union(*(m.__all__ for m in _PUBLIC_MODULES)))
