@@ -24,6 +24,8 @@ def _fmt(value) -> str:
 def check_fs(fs, name: str = "fs") -> float:
     """Return ``fs`` as a float in Hz, or raise if it is not a finite positive scalar."""
     try:
+        if isinstance(fs, bool):  # float(True) is 1.0, but a flag is not a rate
+            raise TypeError
         value = float(fs)
     except (TypeError, ValueError):
         raise SigtuneError(f"sample rate must be a positive number in Hz; got {fs!r}", name) from None

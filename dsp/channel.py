@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import dataclasses
+from collections import Counter
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -156,8 +157,7 @@ class Recording:
         channels = tuple(self.channels)
         if not channels:
             raise SigtuneError("a recording needs at least one channel", self.source or "recording")
-        names = [c.name for c in channels]
-        duplicates = sorted({n for n in names if names.count(n) > 1})
+        duplicates = sorted(n for n, count in Counter(c.name for c in channels).items() if count > 1)
         if duplicates:
             raise SigtuneError(f"channel names must be unique; repeated: {', '.join(duplicates)}",
                                self.source or "recording")

@@ -9,6 +9,7 @@ agreement, NIST SP 811), the bar 10^5 Pa and the pound-force
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -25,6 +26,9 @@ INCH = 0.0254  # m, exact (international inch, 1959)
 FOOT = 0.3048  # m, exact
 POUND_FORCE = 4.4482216152605  # N, exact (NIST SP 811 B.8)
 PSI = POUND_FORCE / INCH**2  # Pa, 6894.757293168361
+
+#: Smallest sensitivity accepted, in V per measured unit (1 nV per unit).
+MIN_SENSITIVITY_V = 1e-9
 
 QUANTITIES = ("acceleration", "velocity", "displacement", "force", "pressure", "voltage", "other")
 
@@ -166,14 +170,21 @@ def sensitivity_factor(sensitivity: float, sensitivity_unit: str) -> tuple[float
     measured_unit : str
         The canonical symbol of the measured unit (``'g'`` ...).
     """
+    if not isinstance(sensitivity_unit, str):
+        raise SigtuneError(f"must be text like 'mV/g'; got {sensitivity_unit!r}", "sensitivity_unit")
     electrical, measured = _split_sensitivity_unit(sensitivity_unit)
     e = unit_info(electrical, "sensitivity_unit")
     if e.quantity != "voltage":
         raise SigtuneError(f"the numerator must be V or mV; got {electrical!r}", "sensitivity_unit")
     m = unit_info(measured, "sensitivity_unit")
-    value = float(sensitivity)
-    if not (value > 0) or not np.isfinite(value):
-        raise SigtuneError(f"must be a finite number > 0; got {sensitivity!r}", "sensitivity")
+    try:
+        value = float(sensitivity) if not isinstance(sensitivity, bool | str) else math.nan
+    except (TypeError, ValueError):
+        value = math.nan
+    # Below 1e-9 V per unit (1 nV/g) no real sensor exists and 1/sensitivity overflows float32 ranges.
+    if not (value * e.to_si >= MIN_SENSITIVITY_V) or not math.isfinite(value):
+        raise SigtuneError(f"must be a finite number > 0 (at least {MIN_SENSITIVITY_V:g} V per unit); "
+                           f"got {sensitivity!r}", "sensitivity")
     return value * e.to_si, m.symbol
 
 

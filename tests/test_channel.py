@@ -75,3 +75,8 @@ def test_recording_needs_unique_names_and_a_channel():
         Recording([Channel(np.zeros(4), 4.0, name="x")] * 2)
     with pytest.raises(SigtuneError, match="at least one channel"):
         Recording([])
+
+
+def test_a_boolean_is_not_a_rate():
+    with pytest.raises(SigtuneError, match=r"positive number in Hz; got True"):
+        Channel(np.zeros(4), fs=True)

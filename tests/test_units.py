@@ -88,7 +88,7 @@ def test_calibration_to_another_unit():
 
 
 @pytest.mark.parametrize("sens, unit, message", [
-    (0.0, "mV/g", r"sensitivity: must be a finite number > 0; got 0"),
+    (0.0, "mV/g", r"sensitivity: must be a finite number > 0.*got 0"),
     (float("nan"), "mV/g", r"sensitivity: must be a finite number > 0"),
     (100.0, "mVg", r"sensitivity_unit: .*like 'mV/g'"),
     (100.0, "N/g", r"numerator must be V or mV"),
@@ -103,3 +103,14 @@ def test_conversion_factor_refuses_units_of_another_quantity():
 
     with pytest.raises(SigtuneError, match=r"cannot convert g \(acceleration\) to Pa \(pressure\)"):
         conversion_factor("g", "Pa")
+
+
+@pytest.mark.parametrize("sens", [None, "abc", [1], True, 1e-320])
+def test_sensitivity_of_the_wrong_type_or_size_is_refused(sens):
+    with pytest.raises(SigtuneError, match=r"sensitivity: must be a finite number > 0"):
+        sensitivity_factor(sens, "mV/g")
+
+
+def test_sensitivity_unit_must_be_text():
+    with pytest.raises(SigtuneError, match=r"sensitivity_unit: must be text like 'mV/g'; got 5"):
+        sensitivity_factor(100.0, 5)

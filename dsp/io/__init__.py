@@ -114,6 +114,9 @@ def read(path: str | os.PathLike, format: str | None = None, **options) -> Recor
     check_options(reader, options, name)
     options = {**_DEFAULT_OPTIONS.get(name, {}), **options}
     if not path.is_file():
+        if path.exists() and not path.is_dir():  # opening a pipe would wait for a writer, maybe forever
+            raise SigtuneError("is not a regular file (a pipe, socket or device); sigtune reads recordings "
+                               "from files", str(path))
         open(path, "rb").close()  # raises the accurate OSError (missing, a directory, no permission)
     if path.stat().st_size == 0:
         raise SigtuneError(f"the file is empty (0 bytes); expected a {name} recording", str(path))
@@ -156,5 +159,12 @@ def write(recording, path: str | os.PathLike, format: str | None = None, **optio
 
 
 def _located(err: SigtuneError, path: Path) -> SigtuneError:
-    """Prefix the file's path to an error, unless it already names the file."""
-    return err if err.where and err.where.startswith(str(path)) else err.located(str(path))
+    """Prefix the file's path to an error, unless it already names the file; keep it on one line."""
+    located = err if err.where and err.where.startswith(str(path)) else err.located(str(path))
+    if "\n" in str(located) or "\r" in str(located):  # a name read from the file may hold a line break
+        located = SigtuneError(_one_line(located.detail), _one_line(located.where))
+    return located
+
+
+def _one_line(text: str | None) -> str | None:
+    return text if text is None else text.replace("\r", "\\r").replace("\n", "\\n")

@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validate import check_number
 from .._version import __version__
 from ..channel import Channel, Recording
 from ..errors import SigtuneError
@@ -21,6 +22,9 @@ from ..errors import SigtuneError
 #: file is not a recording of ours (or is binary), and reading it whole could
 #: exhaust memory.
 MAX_LINE_BYTES = 1 << 20
+
+#: Below this a sensitivity is no sensor's (any unit): its reciprocal could overflow.
+_SMALLEST_SENSITIVITY = 1e-200
 
 #: How many non-finite runs an error message lists before summarising.
 RUNS_LISTED = 3
@@ -54,6 +58,17 @@ def from_json(text: Any, where: str) -> Any:
         return json.loads(str(text))
     except json.JSONDecodeError as err:
         raise SigtuneError(f"is not valid JSON ({err.msg} at character {err.pos})", where) from None
+    except RecursionError:  # one C call per level: a hostile file may nest [[[[... a million deep
+        raise SigtuneError("is JSON nested too deeply to read (about a thousand levels of [ or {); sigtune "
+                           "metadata nests a few levels at most. Is the file damaged?", where) from None
+
+
+def json_object(value: Any, where: str) -> dict:
+    """Return ``value`` if it is a JSON object (a dict), else raise saying what it is."""
+    if not isinstance(value, dict):
+        raise SigtuneError(f"must be a JSON object ({{\"key\": value, ...}}); got {type(value).__name__} "
+                           f"{value!r:.40}", where)
+    return value
 
 
 def channel_header(channel: Channel) -> dict[str, Any]:
@@ -74,14 +89,35 @@ def channel_from_header(data: np.ndarray, header: Mapping[str, Any], where: str)
     metadata, history = header.get("metadata") or {}, header.get("history") or []
     if not isinstance(metadata, Mapping) or not isinstance(history, list):
         raise SigtuneError("'metadata' must be a JSON object and 'history' a JSON list", where)
+    if not all(isinstance(step, Mapping) for step in history):
+        bad = next(step for step in history if not isinstance(step, Mapping))
+        raise SigtuneError(f"'history' must list processing steps as JSON objects ({{\"op\": ...}}); got "
+                           f"{type(bad).__name__} {bad!r:.40}", where)
+    start = check_number(header.get("start_time_s", 0.0), f"{where} start_time_s", unit="s")
     try:
         return Channel(data, header["fs_hz"], name=str(header["name"]), unit=header["unit"],
-                       quantity=header.get("quantity"), start_time=float(header.get("start_time_s", 0.0)),
-                       metadata=metadata, history=tuple(history))
+                       quantity=header.get("quantity"), start_time=start, metadata=metadata,
+                       history=tuple(history))
     except (TypeError, ValueError) as err:
         if isinstance(err, SigtuneError):
             raise err.located(where) from None
         raise SigtuneError(str(err), where) from None
+
+
+def checked_sensitivity(sensitivity: Any, unit: Any, where: str) -> tuple[float, str]:
+    """Return a sensor sensitivity read from a file as ``(number > 0, unit text)``, or raise naming ``where``.
+
+    Checked here because :func:`dsp.units.sensitivity_factor` expects a number
+    and a text unit, and a file may hold anything.
+    """
+    value = check_number(sensitivity, f"{where} sensitivity", low=0.0, low_open=True)
+    if value < _SMALLEST_SENSITIVITY:  # calibrating divides by it: every sample would overflow to Inf
+        raise SigtuneError(f"{value!r} is too small to be a sensor sensitivity (calibrating divides by it); "
+                           "expected a value such as 100 (mV/g)", f"{where} sensitivity")
+    if not isinstance(unit, str):
+        raise SigtuneError(f"must be text such as 'mV/g' or 'mV/(m/s^2)'; got {unit!r:.40}",
+                           f"{where} sensitivity_unit")
+    return value, unit
 
 
 def recording_header(recording: Recording) -> dict[str, Any]:
@@ -113,6 +149,23 @@ def common_timebase(recording: Recording, format_name: str) -> tuple[float, int,
                 f"{first.name!r} has fs={first.fs:g} Hz, {first.n_samples} samples, start "
                 f"{first.start_time:g} s. Write .h5 or .npz instead, or resample/crop first", "recording")
     return first.fs, first.n_samples, first.start_time
+
+
+def checked_timestamps(stamps, channels: list[Channel], where: str):
+    """Return a stored time column if it describes ``channels``, None if it is absent or of another length.
+
+    ``stamps`` is an array or an HDF5 dataset (only its shape and dtype are
+    looked at, so a dataset is checked before it is read). A time column that
+    is not a 1-D array of numbers is an error: it cannot be a time axis.
+    """
+    if stamps is None:
+        return None
+    if stamps.ndim != 1 or stamps.dtype.kind not in "fiu":
+        raise SigtuneError(f"must be a 1-D array of times in s; got shape {stamps.shape}, "
+                           f"dtype {stamps.dtype}", where)
+    if any(ch.n_samples != stamps.size for ch in channels):
+        return None  # a time column only describes channels of its own length
+    return stamps
 
 
 def nonfinite_runs(x: np.ndarray) -> list[tuple[int, int]]:

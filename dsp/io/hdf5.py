@@ -17,6 +17,8 @@ channel straight from the file (no second copy), and :func:`read_block` /
 
 from __future__ import annotations
 
+import contextlib
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
@@ -28,8 +30,8 @@ from .._validate import check_choice, check_fs, check_int
 from ..channel import Channel, Recording
 from ..conditioning import Calibrate
 from ..errors import SigtuneError
-from ._common import (as_recording, channel_from_header, channel_header, check_finite, from_json,
-                      recording_header, to_json)
+from ._common import (as_recording, channel_from_header, channel_header, check_finite, checked_sensitivity,
+                      checked_timestamps, from_json, json_object, recording_header, to_json)
 
 __all__ = ["read_hdf5", "write_hdf5", "read_block", "channel_info", "LAYOUT", "LAYOUT_VERSION"]
 
@@ -37,6 +39,10 @@ LAYOUT = "sigtune-recording"
 LAYOUT_VERSION = 1
 _DEFAULT_CHUNK = 1 << 17  # samples: 0.5-1 MiB chunks read efficiently and compress well
 _REQUIRED_ATTRS = ("name", "fs_hz", "unit")
+_HEAP_SIGNATURE = b"GCOL\x01"  # a global heap collection, version 1 (the only version)
+#: How much of one heap collection is walked: collections hold text attributes (a few kB); the bound
+#: keeps a damaged size field from making the walk read a whole large file into memory.
+_HEAP_WALK_BYTES = 1 << 26
 
 
 def _open(path: Path) -> h5py.File:
@@ -44,6 +50,99 @@ def _open(path: Path) -> h5py.File:
         return h5py.File(path, "r")
     except OSError as err:
         raise SigtuneError(f"is not a readable HDF5 file ({err})") from None
+
+
+@contextlib.contextmanager
+def _opened(path: Path) -> Iterator[h5py.File]:
+    """Open ``path`` read-only, refuse a damaged global heap, and turn the HDF5 library's
+    complaints about a damaged file into SigtuneError.
+
+    h5py reports damage as OSError, KeyError or RuntimeError, and a garbled
+    datatype or a link name that is not UTF-8 as ValueError.
+    """
+    try:
+        with _open(path) as f:
+            _check_global_heaps(path, f)
+            yield f
+    except SigtuneError:
+        raise
+    except (OSError, KeyError, RuntimeError, ValueError) as err:
+        raise SigtuneError(f"is damaged or incomplete: the HDF5 library could not read it ({err})") from None
+
+
+def _raw_extents(f: h5py.File) -> list[tuple[int, int]]:
+    """Return ``(offset, length)`` of the stored samples of the channel and time datasets.
+
+    Only their layout is read (no attribute values), so this is safe before
+    :func:`_check_global_heaps`; the heap scan skips these bytes.
+    """
+    datasets = []
+    group = f.get("channels")
+    if isinstance(group, h5py.Group):
+        datasets += [group[key] for key in group if isinstance(group.get(key, getlink=True), h5py.HardLink)]
+    if isinstance(f.get("timestamps", getlink=True), h5py.HardLink):
+        datasets.append(f["timestamps"])
+    extents = []
+    for ds in datasets:
+        if not isinstance(ds, h5py.Dataset) or ds.is_virtual:
+            continue
+        layout = ds.id.get_create_plist().get_layout()
+        if layout == h5py.h5d.CHUNKED:
+            ds.id.chunk_iter(lambda info: extents.append((info.byte_offset, info.size)))
+        elif layout == h5py.h5d.CONTIGUOUS and ds.id.get_offset() is not None:
+            extents.append((ds.id.get_offset(), ds.id.get_storage_size()))
+    return sorted(extents)
+
+
+def _check_global_heaps(path: Path, f: h5py.File) -> None:
+    """Refuse a file whose global heap would send the HDF5 library into an endless loop.
+
+    Text attributes live in "global heap collections" (signature ``GCOL``).
+    libhdf5 (2.0.0 and earlier) walks a collection's objects by their stated
+    sizes and never ends if a free-space object states size 0 (a bit flip or an
+    inserted byte is enough), hanging the process where no timeout can reach.
+    Before any attribute is read, every collection outside the sample data is
+    walked the same way here. Sample data is skipped, so the cost is that of
+    reading the file's metadata, not its samples.
+    """
+    size = path.stat().st_size
+    position = 0
+    with open(path, "rb") as fh:
+        for offset, length in [*_raw_extents(f), (size, 0)]:
+            offset = min(offset, size)  # a damaged layout may point past the end
+            if offset > position:
+                _scan_for_heaps(fh, position, offset, size)
+            position = max(position, offset + length)
+
+
+def _scan_for_heaps(fh, start: int, stop: int, file_size: int) -> None:
+    block = 1 << 22
+    for a in range(start, stop, block):
+        fh.seek(a)
+        data = fh.read(min(block, stop - a) + len(_HEAP_SIGNATURE) - 1)
+        found = data.find(_HEAP_SIGNATURE)
+        while found >= 0:
+            _walk_heap(fh, a + found, file_size)
+            found = data.find(_HEAP_SIGNATURE, found + 1)
+
+
+def _walk_heap(fh, at: int, file_size: int) -> None:
+    """Walk one global heap collection as libhdf5 does (H5HG deserialise), refusing a walk that stalls."""
+    fh.seek(at + 8)
+    stated = int.from_bytes(fh.read(8), "little")
+    fh.seek(at)
+    heap = fh.read(min(stated, file_size - at, _HEAP_WALK_BYTES))
+    p = 16  # signature, version, 3 reserved bytes, collection size
+    while p + 16 <= len(heap):
+        index = int.from_bytes(heap[p:p + 2], "little")
+        object_size = int.from_bytes(heap[p + 8:p + 16], "little")
+        # libhdf5's arithmetic is 64-bit unsigned: a huge size can wrap round to a step of 0.
+        step = (16 + (object_size + 7) // 8 * 8 if index else object_size) % 2**64
+        if step == 0 or step >= 2**63:
+            raise SigtuneError(f"is damaged: the global heap at byte {at} (where HDF5 keeps text attributes) "
+                               f"states an object of {object_size} bytes at byte {at + p}, which the HDF5 "
+                               "library would loop on forever. Copy the file again from its source")
+        p += step
 
 
 def _attr(value: Any) -> Any:
@@ -56,7 +155,12 @@ def _attr(value: Any) -> Any:
 
 def _describe_contents(f: h5py.File) -> str:
     names: list[str] = []
-    f.visit(lambda name: None if len(names) >= 6 else names.append("/" + name))
+
+    def note(name: str):
+        names.append("/" + name)
+        return True if len(names) >= 6 else None  # a value other than None stops the walk
+
+    f.visit(note)
     return ", ".join(names) if names else "nothing"
 
 
@@ -76,15 +180,37 @@ def _channel_datasets(f: h5py.File) -> list[h5py.Dataset]:
     if not isinstance(group, h5py.Group) or not len(group):
         raise SigtuneError("has no datasets under /channels; a sigtune HDF5 file holds one dataset per "
                            "channel there", "/channels")
-    datasets = [group[key] for key in sorted(group)]
+    datasets = []
+    for key in sorted(group):
+        link = group.get(key, getlink=True)
+        if not isinstance(link, h5py.HardLink):  # a link could point anywhere, even into another file
+            raise SigtuneError(f"is a link ({_link_text(link)}), not a dataset stored in the file; sigtune "
+                               "reads channels held in the file itself", f"/channels/{key}")
+        datasets.append(group[key])
     for ds in datasets:
-        if not isinstance(ds, h5py.Dataset) or ds.ndim != 1 or ds.dtype.kind not in "fiu":
-            raise SigtuneError("must be a 1-D numeric dataset", ds.name)
+        if not isinstance(ds, h5py.Dataset):
+            raise SigtuneError("is a group; each entry of /channels must be a 1-D numeric dataset", ds.name)
+        if ds.ndim != 1 or ds.dtype.kind not in "fiu":
+            raise SigtuneError(f"must be a 1-D numeric dataset; got shape {ds.shape}, dtype {ds.dtype}",
+                               ds.name)
+        _check_held_in_file(ds)
         missing = [a for a in _REQUIRED_ATTRS if a not in ds.attrs]
         if missing:
             raise SigtuneError(f"lacks attribute(s) {', '.join(missing)}; each channel dataset needs "
                                f"{', '.join(_REQUIRED_ATTRS)}", ds.name)
     return datasets
+
+
+def _check_held_in_file(ds: h5py.Dataset) -> None:
+    if ds.is_virtual or ds.external:  # reading them would read whatever other files they name
+        raise SigtuneError("keeps its samples in other files (a virtual dataset or external storage); "
+                           "sigtune reads data held in the file itself", ds.name)
+
+
+def _link_text(link) -> str:
+    if isinstance(link, h5py.ExternalLink):
+        return f"an external link to {link.filename}:{link.path}"
+    return f"a soft link to {link.path}" if isinstance(link, h5py.SoftLink) else type(link).__name__
 
 
 def _header(ds: h5py.Dataset) -> dict[str, Any]:
@@ -101,10 +227,35 @@ def _header(ds: h5py.Dataset) -> dict[str, Any]:
             "history": from_json(attrs.get("history", "[]"), f"{ds.name} attribute history")}
 
 
-def _samples(ds: h5py.Dataset) -> np.ndarray:
+def _check_stored(ds: h5py.Dataset) -> None:
+    """Refuse a dataset whose declared length its stored data cannot back.
+
+    HDF5 returns the fill value (0) for chunks never written, so a dataset
+    created for 10^12 samples but holding none would read as 8 TB of zeros,
+    and an interrupted logger's file as a tail of silent zeros.
+    """
+    layout = ds.id.get_create_plist().get_layout()
+    if layout == h5py.h5d.CHUNKED:
+        needed = int(np.prod([-(-n // c) for n, c in zip(ds.shape, ds.chunks)]))
+        stored = ds.id.get_num_chunks()
+        if stored < needed:
+            raise SigtuneError(f"declares {ds.size} samples in {needed} chunks but only {stored} chunk(s) "
+                               "are stored; the rest would read as zeros. The file is incomplete (an "
+                               "interrupted recording or copy?)", ds.name)
+    elif layout == h5py.h5d.CONTIGUOUS and ds.id.get_storage_size() < ds.size * ds.dtype.itemsize:
+        raise SigtuneError(f"declares {ds.size} samples ({ds.size * ds.dtype.itemsize} bytes) but stores "
+                           f"{ds.id.get_storage_size()} bytes; the file is incomplete", ds.name)
+
+
+def _samples(ds: h5py.Dataset, dtype=None) -> np.ndarray:
     """Read a whole dataset into one new array (float32 kept, other types as float64)."""
-    dtype = np.float32 if ds.dtype == np.float32 else np.float64
-    out = np.empty(ds.shape, dtype=dtype)
+    dtype = dtype or (np.float32 if ds.dtype == np.float32 else np.float64)
+    _check_stored(ds)
+    try:
+        out = np.empty(ds.shape, dtype=dtype)
+    except MemoryError:  # one allocation of the declared size failed; nothing else was held
+        raise SigtuneError(f"holds {ds.size} samples, more than the memory available; read it in blocks "
+                           "with dsp.io.hdf5.read_block", ds.name) from None
     if out.size:
         try:
             ds.read_direct(out)  # HDF5 converts into our buffer: the samples are held once
@@ -148,18 +299,21 @@ def read_hdf5(path, *, channels=None, calibrate: bool = False, allow_nonfinite: 
         Keep NaN/Inf samples instead of raising.
     """
     path = Path(path)
-    with _open(path) as f:
+    with _opened(path) as f:
         datasets = _select(_channel_datasets(f), channels)
-        metadata = from_json(_attr(f.attrs.get("metadata", "{}")), "/ attribute metadata")
-        stamps = f.get("timestamps")
-        timestamps = stamps[()] if isinstance(stamps, h5py.Dataset) else None
+        metadata = json_object(from_json(_attr(f.attrs.get("metadata", "{}")), "/ attribute metadata"),
+                               "/ attribute metadata")
         result = []
         for ds in datasets:
             ch = channel_from_header(_samples(ds), _header(ds), ds.name)
-            check_finite(ch, allow_nonfinite)
-            result.append(_calibrated(ch, ds.name) if calibrate else ch)
-    if timestamps is not None and any(ch.n_samples != timestamps.size for ch in result):
-        timestamps = None  # a time column only describes channels of its own length
+            ch = _calibrated(ch, ds.name) if calibrate else ch
+            check_finite(ch, allow_nonfinite)  # after calibrating: a tiny sensitivity can overflow
+            result.append(ch)
+        stamps = f["timestamps"] if isinstance(f.get("timestamps", getlink=True), h5py.HardLink) else None
+        stamps = checked_timestamps(stamps, result, "/timestamps")  # checked before it is read
+        if stamps is not None:
+            _check_held_in_file(stamps)
+        timestamps = None if stamps is None else _samples(stamps, np.float64)
     return Recording(result, source=str(path), metadata={**metadata, "format": "h5"}, timestamps=timestamps)
 
 
@@ -169,7 +323,8 @@ def _calibrated(channel: Channel, where: str) -> Channel:
     if "sensitivity" not in channel.metadata:
         raise SigtuneError("is a voltage channel without a 'sensitivity' attribute, so calibrate=True "
                            "cannot convert it; add the attribute or read with calibrate=False", where)
-    step = Calibrate(channel.metadata["sensitivity"], channel.metadata.get("sensitivity_unit", "mV/g"))
+    step = Calibrate(*checked_sensitivity(channel.metadata["sensitivity"],
+                                          channel.metadata.get("sensitivity_unit", "mV/g"), where))
     return step.apply(channel)
 
 
@@ -186,7 +341,7 @@ def channel_info(path) -> list[dict[str, Any]]:
     """
     path = Path(path)
     try:
-        with _open(path) as f:
+        with _opened(path) as f:
             rows = []
             for i, ds in enumerate(_channel_datasets(f)):
                 header = _header(ds)
@@ -221,7 +376,7 @@ def read_block(path, channel: int | str, start: int = 0, stop: int | None = None
     """
     path = Path(path)
     try:
-        with _open(path) as f:
+        with _opened(path) as f:
             ds = _select(_channel_datasets(f), [channel])[0]
             n = int(ds.shape[0])
             start = check_int(start, "start", low=0, high=n - 1)

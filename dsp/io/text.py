@@ -39,6 +39,7 @@ _TIME_UNITS = {"s": 1.0, "sec": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6}
 _DELIMITER_CANDIDATES = ("\t", ";", ",", "|")
 _SNIFF_LINES = 20
 _COMMENTS_KEPT = 200  # leading comment lines kept as metadata; a longer preamble is only skipped
+_UTF8_BOM = b"\xef\xbb\xbf"
 _BLOCK_BYTES = 1 << 23  # 8 MiB: large enough for loadtxt's speed, small enough to bound memory
 _COLUMN = re.compile(r"^(?P<name>.*?)\s*[\[(]\s*(?P<unit>[^\])]*?)\s*[\])]$")
 
@@ -63,6 +64,15 @@ def _read_line(fh, line_no: int) -> bytes:
         raise SigtuneError(f"is longer than {MAX_LINE_BYTES} bytes (no line break found); a text "
                            "recording has one row per line. Is this a binary file? Choose its format "
                            "with format=...", f"line {line_no}")
+    if b"\x00" in raw:  # never in UTF-8/Latin-1 text; every other byte of UTF-16 text
+        utf16 = raw[:2] in (b"\xff\xfe", b"\xfe\xff") or 0.3 < raw.count(b"\x00") / len(raw) < 0.7
+        kind = "UTF-16 text" if utf16 else "binary data"
+        raise SigtuneError(f"holds NUL bytes: this looks like {kind}, not a CSV/TSV recording. Save text as "
+                           "UTF-8 (or ASCII), or choose the file's real format with format=...",
+                           f"line {line_no}")
+    if b"\r" in raw.rstrip(b"\r\n"):  # lines ended by CR alone (old Mac) read as one enormous line
+        raise SigtuneError("holds a carriage return (CR) inside the line: the file's lines end with CR "
+                           "alone. Convert its line endings to LF or CRLF", f"line {line_no}")
     return raw
 
 
@@ -314,7 +324,12 @@ def _rate_from_time(t: np.ndarray, fs_stated: float | None, tolerance: float, li
             "Repair the file, raise time_tolerance, or pass fs= and time_column=None to ignore the "
             "time column",
             f"line {line_of(worst + 1)}")
-    return fs_stated if fs_stated is not None else (t.size - 1) / (t[-1] - t[0])
+    if fs_stated is not None:
+        return fs_stated
+    with np.errstate(over="ignore"):  # a span of a few subnormal seconds gives an infinite rate, refused here
+        rate = (t.size - 1) / (t[-1] - t[0])
+    return check_fs(rate, f"rate inferred from the time column ({t.size} rows from t={float(t[0])!r} s to "
+                          f"t={float(t[-1])!r} s)")
 
 
 def _units(names: list[str], header_units: list[str | None], unit) -> list[str]:
@@ -366,6 +381,8 @@ def read_text(path, *, delimiter: str | None = None, fs: float | None = None, ti
     if delimiter == " ":
         delimiter = None
     with open(path, "rb") as fh:
+        if fh.read(len(_UTF8_BOM)) != _UTF8_BOM:  # a BOM before the first row would be read as part of it
+            fh.seek(0)
         pre = _read_preamble(fh, delimiter, sniff=delimiter is None)
         header = pre.fields or [f"ch{i + 1}" for i in range(pre.n_columns)]
         parsed = [_column_name_unit(text, i) for i, text in enumerate(header)]

@@ -22,8 +22,8 @@ from .._validate import check_choice, check_number
 from ..channel import Channel, Recording
 from ..errors import SigtuneError
 from ..units import conversion_factor, sensitivity_factor, unit_info
-from ._common import (as_recording, channel_from_header, channel_header, check_finite, common_timebase,
-                      from_json, recording_header, to_json)
+from ._common import (as_recording, channel_from_header, channel_header, check_finite, checked_sensitivity,
+                      common_timebase, from_json, json_object, recording_header, to_json)
 
 __all__ = ["read_wav", "write_wav", "sidecar_path", "SIDECAR_LAYOUT", "WAV_SUBTYPES"]
 
@@ -32,6 +32,9 @@ SIDECAR_LAYOUT = "sigtune-wav-sidecar"
 WAV_SUBTYPES = ("PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE")
 _INT_BITS = {"PCM_16": 16, "PCM_24": 24, "PCM_32": 32}
 _FLOAT32_EXACT = {"PCM_U8", "PCM_S8", "PCM_16", "PCM_24", "FLOAT"}  # float32 holds these exactly
+_WAV_CONTAINERS = ("WAV", "WAVEX", "RF64", "W64")  # libsndfile's names for the WAV family
+#: Sample encodings read; compressed ones (ADPCM, GSM ...) are refused.
+_SUBTYPES_READ = ("PCM_U8", "PCM_S8", "ALAW", "ULAW", "PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE")
 _SENSITIVITY_KEYS = ("sensitivity", "sensitivity_unit", "full_scale_volts")
 _CALIBRATION_KEYS = ("name", "unit", "quantity", "scale", *_SENSITIVITY_KEYS, "start_time_s", "metadata",
                      "history")
@@ -71,10 +74,30 @@ def _check_not_truncated(path: Path) -> None:
 
 def _open_info(path: Path):
     try:
-        return soundfile.info(str(path))
+        info = soundfile.info(str(path))
     except (soundfile.LibsndfileError, RuntimeError, OSError) as err:
         raise SigtuneError(f"is not a readable WAV file ({err}); expected RIFF/WAVE with PCM 16/24/32-bit "
                            "or float 32/64 samples") from None
+    _check_wav_layout(info)
+    return info
+
+
+def _check_wav_layout(info) -> None:
+    """Refuse what libsndfile can read but a WAV reader should not: other containers and compressed samples.
+
+    libsndfile recognises files by their content, so a FLAC or Ogg file renamed
+    ``.wav`` would be decoded, and soundfile allocates every frame the header
+    declares before decoding: a 600-byte FLAC header claiming 2^36 frames
+    would ask for 256 GiB. Within WAV containers (RIFF, RF64, Wave64) of
+    uncompressed samples libsndfile bounds the declared frames by the file's size.
+    """
+    if info.format not in _WAV_CONTAINERS:
+        raise SigtuneError(f"holds {info.format_info} audio ({info.format}), not WAV; sigtune reads WAV "
+                           "(RIFF/WAVE, WAVE_FORMAT_EXTENSIBLE, RF64, Wave64). Convert it to WAV, or read it "
+                           "with its own tool and dsp.write the result")
+    if info.subtype not in _SUBTYPES_READ:
+        raise SigtuneError(f"holds {info.subtype_info} samples ({info.subtype}); sigtune reads PCM "
+                           "8/16/24/32-bit, A-law, u-law and float 32/64 WAV. Convert it to PCM or float WAV")
 
 
 def _load_sidecar(path: Path, sidecar) -> tuple[dict, Path | None]:
@@ -131,12 +154,14 @@ def _apply_calibration(data: np.ndarray, entry: dict, index: int, fs: float) -> 
         if "full_scale_volts" not in entry or "scale" in entry:
             raise SigtuneError("a sensitivity needs 'full_scale_volts' (the volts that 1.0 FS stands for) "
                                "and excludes 'scale'", where)
-        v_per_unit, measured = sensitivity_factor(entry["sensitivity"], entry.get("sensitivity_unit", "mV/g"))
+        sensitivity, sensitivity_unit = checked_sensitivity(entry["sensitivity"],
+                                                            entry.get("sensitivity_unit", "mV/g"), where)
+        v_per_unit, measured = sensitivity_factor(sensitivity, sensitivity_unit)
         volts = check_number(entry["full_scale_volts"], f"{where}.full_scale_volts", low=0.0, low_open=True)
         target = entry.get("unit", measured)
         if unit_info(target, f"{where}.unit").quantity != unit_info(measured).quantity:
             raise SigtuneError(f"unit {target!r} does not measure {unit_info(measured).quantity}, the "
-                               f"quantity of the sensitivity unit {entry.get('sensitivity_unit', 'mV/g')!r}",
+                               f"quantity of the sensitivity unit {sensitivity_unit!r}",
                                where)
         scale = volts / v_per_unit * conversion_factor(measured, target)
         header["unit"] = target
@@ -147,7 +172,7 @@ def _apply_calibration(data: np.ndarray, entry: dict, index: int, fs: float) -> 
     unit_info(header["unit"], f"{where}.unit")
     if scale != 1.0:
         data = data * scale
-    metadata = dict(header.get("metadata") or {})
+    metadata = dict(json_object(header.get("metadata") or {}, f"{where}.metadata"))
     calibrated = {k: v for k, v in entry.items() if k in ("scale", *_SENSITIVITY_KEYS)}
     if calibrated and calibrated != {"scale": 1.0}:  # a unit scale is no calibration worth noting
         metadata["calibration"] = calibrated
@@ -196,7 +221,8 @@ def read_wav(path, *, calibration=None, sidecar="auto", allow_nonfinite: bool = 
         ch = _apply_calibration(samples[i], entry, i, float(fs))
         check_finite(ch, allow_nonfinite)
         channels.append(ch)
-    metadata = {**(side_data.get("metadata") or {}), "format": "wav", "wav_subtype": info.subtype}
+    side_metadata = json_object(side_data.get("metadata") or {}, f"{side} metadata") if side else {}
+    metadata = {**side_metadata, "format": "wav", "wav_subtype": info.subtype}
     return Recording(channels, source=str(path), metadata=metadata)
 
 
@@ -264,17 +290,25 @@ def write_wav(recording, path, *, subtype: str = "DOUBLE", full_scale=None, side
         frames = np.stack([ch.data for ch in recording], axis=1)
         scales = [1.0] * len(recording)
     path = Path(path)
+    side = sidecar_path(path)
+    if not sidecar and side.exists():
+        raise SigtuneError(f"a sidecar {side.name!r} lies beside the target and would give the new file its "
+                           "names, units and scales; write with sidecar=True, or delete the sidecar first",
+                           str(side))
+    # The sidecar text is made before anything is written, so a value JSON cannot hold fails with
+    # both files untouched; the new sidecar then replaces the old one just before the WAV does.
+    side_text = _sidecar_text(recording, scales) if sidecar else None
     try:
         with atomic_path(path) as tmp:
             soundfile.write(str(tmp), frames, int(round(fs)), subtype=subtype, format="WAV")
+            if side_text is not None:
+                write_text_atomic(side, side_text)
     except (soundfile.LibsndfileError, RuntimeError) as err:
         raise SigtuneError(f"could not be written ({err})") from None
-    if sidecar:
-        _write_sidecar(recording, path, scales)
     return path
 
 
-def _write_sidecar(recording: Recording, path: Path, scales: list[float]) -> None:
+def _sidecar_text(recording: Recording, scales: list[float]) -> str:
     entries = []
     for ch, scale in zip(recording, scales):
         header = channel_header(ch)
@@ -282,4 +316,4 @@ def _write_sidecar(recording: Recording, path: Path, scales: list[float]) -> Non
         entries.append({**header, "scale": scale})
     document = {"layout": SIDECAR_LAYOUT, "layout_version": 1, **recording_header(recording),
                 "channels": entries}
-    write_text_atomic(sidecar_path(path), to_json(document, "sidecar") + "\n")
+    return to_json(document, "sidecar") + "\n"
