@@ -24,18 +24,19 @@ Errors
     SigtuneError (a ValueError), SigtuneWarning
 """
 
-from . import advice, analysis, bands, campaign, conditioning, demo, evaluation, filters, io, motion
+from . import advice, analysis, bands, blocks, campaign, conditioning, demo, evaluation, filters, io, motion
 from . import quality, resample, session, severity, spectra, steps, units, weighting, windows
 
 # Captured before the star imports below, which rebind some names (``resample`` the function
 # shadows ``resample`` the module inside this namespace).
-_PUBLIC_MODULES = (advice, analysis, bands, campaign, conditioning, demo, evaluation, filters, io, motion,
+_PUBLIC_MODULES = (advice, analysis, bands, blocks, campaign, conditioning, demo, evaluation, filters, io, motion,
                    quality, resample, session, severity, spectra, steps, units, weighting, windows)
 
 from ._version import __version__  # noqa: E402
 from .advice import *  # noqa: E402,F403
 from .analysis import *  # noqa: E402,F403
 from .bands import *  # noqa: E402,F403
+from .blocks import *  # noqa: E402,F403
 from .campaign import *  # noqa: E402,F403
 from .channel import Channel, Recording  # noqa: E402
 from .conditioning import *  # noqa: E402,F403
