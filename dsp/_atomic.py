@@ -21,6 +21,8 @@ def atomic_path(target: str | os.PathLike) -> Iterator[Path]:
     """
     target = Path(target)
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
+    # mkstemp creates the file 0600; give it the mode a plain open() would (or keep the target's).
+    os.fchmod(fd, _mode_for(target))
     os.close(fd)
     tmp_path = Path(tmp)
     try:
@@ -32,6 +34,22 @@ def atomic_path(target: str | os.PathLike) -> Iterator[Path]:
         with contextlib.suppress(FileNotFoundError):
             tmp_path.unlink()
         raise
+
+
+def _mode_for(target: Path) -> int:
+    """The permission bits the target has, or those a new file gets under this process's umask."""
+    try:
+        return target.stat().st_mode & 0o777
+    except FileNotFoundError:
+        pass
+    umask = 0o022
+    try:  # read the umask without os.umask(), which would change it for every thread meanwhile
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("Umask:"):
+                umask = int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    return 0o666 & ~umask
 
 
 def write_text_atomic(target: str | os.PathLike, text: str, encoding: str = "utf-8") -> Path:
