@@ -102,6 +102,9 @@ SEVERITIES = ("info", "warning", "error")
 CLIP_FULL_SCALE_FRACTION = 0.99  # common practice: the top 1 % of a converter's range is suspect
 CLIP_MIN_RUN = 3
 CLIP_PLATEAU_RATIO = 6.0
+#: Clipped runs closer together than this (s) are one clipping episode, reported as one finding: an
+#: overdriven burst flattens every cycle's peaks, and listing each flat top hides everything else.
+CLIP_EPISODE_GAP_S = 0.02
 DROPOUT_MIN_RUN = 10
 SPIKE_THRESHOLD = 8.0
 SPIKE_GROUP_SAMPLES = 5
@@ -250,6 +253,26 @@ def _clipping(x: np.ndarray, offset: int, extremes: tuple[float, float], full_sc
         mask = np.abs(x) >= CLIP_FULL_SCALE_FRACTION * full_scale
         ranges += [(a + offset, b + offset) for a, b in _runs(mask)]
     return _merge(ranges)
+
+
+def _clipping_findings(x: np.ndarray, offset: int, clipped: list[tuple[int, int]], max_gap: float,
+                       unit: str) -> list["Finding"]:
+    """One finding per clipping episode: clipped runs less than ``max_gap`` samples apart."""
+    episodes: list[list[tuple[int, int]]] = []
+    for a, b in clipped:
+        if episodes and a - episodes[-1][-1][1] < max_gap:
+            episodes[-1].append((a, b))
+        else:
+            episodes.append([(a, b)])
+    findings = []
+    for runs in episodes:
+        start, stop = runs[0][0], runs[-1][1]
+        limits = sorted({f"{float(x[a - offset]):.6g}" for a, _ in runs})
+        at = f"{sum(b - a for a, b in runs)} samples at the limit {' / '.join(limits)} {unit}"
+        what = at if len(runs) == 1 else f"{len(runs)} flat-topped runs, {at}"
+        findings.append(Finding("clipping", "error", start, stop, what,
+                                "re-record with a larger input range; peak and RMS here are underestimated"))
+    return findings
 
 
 def _dropouts(x: np.ndarray, offset: int, min_run: int, clipped: list[tuple[int, int]]):
@@ -895,10 +918,7 @@ def _defects(segments, valid, full_scale, clip_min_run, dropout_min_run, spike_t
     for seg in segments:
         x = np.asarray(seg.channel.data)
         clipped = _clipping(x, seg.start, extremes, full_scale, clip_min_run)
-        clips += [Finding("clipping", "error", a, b, f"{b - a} samples at the limit "
-                          f"{float(x[a - seg.start]):.6g} {unit}",
-                          "re-record with a larger input range; peak and RMS here are underestimated")
-                  for a, b in clipped]
+        clips += _clipping_findings(x, seg.start, clipped, CLIP_EPISODE_GAP_S * seg.channel.fs, unit)
         drops += [Finding("dropout", "error", a, b, f"{b - a} samples held at "
                           f"{'zero' if v == 0 else f'{v:.6g} {unit}'}",
                           "check cable and connector; exclude the range from metrics")

@@ -335,3 +335,20 @@ def test_audit_rejects_bad_settings():
         audit(ch, full_scale=-1.0)
     with pytest.raises(SigtuneError, match="alpha"):
         audit(ch, alpha=1.5)
+
+
+def test_an_overdriven_burst_is_one_clipping_episode():
+    # regression: each flat top of a clipped burst was its own finding (154 rows on the demo)
+    fs, f = 5120.0, 612.0
+    t = np.arange(int(fs)) / fs
+    rng = np.random.default_rng(11)
+    x = 0.05 * rng.standard_normal(t.size)
+    burst = (t >= 0.4) & (t < 0.5)
+    x[burst] += 4.0 * np.sin(2 * np.pi * f * t[burst])
+    x = np.clip(x, -1.0, 1.0)  # analytic: every half cycle of the burst flattens at +-1
+    report = audit(Channel(x, fs))
+    clips = [g for g in report.findings if g.kind == "clipping"]
+    assert len(clips) == 1
+    assert 0.4 * fs <= clips[0].start < 0.4 * fs + fs / f  # within the first cycle of the burst
+    assert 0.5 * fs - fs / f <= clips[0].stop <= 0.5 * fs
+    assert "flat-topped runs" in clips[0].message
