@@ -41,6 +41,8 @@ def check_number(value, name: str, *, low=None, high=None, low_open=False, high_
     ``low_open``/``high_open`` make the bound strict. ``hint`` says how to fix it.
     """
     try:
+        if isinstance(value, bool | str):  # float(True) == 1.0 and float("5") == 5.0: neither is a number
+            raise TypeError
         x = float(value)
     except (TypeError, ValueError):
         raise SigtuneError(f"must be a number{_range_text(low, high, low_open, high_open, unit)}; "

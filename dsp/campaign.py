@@ -30,7 +30,15 @@ Resuming
 Failures
     A file that cannot be read or processed is recorded with its error (in
     the summary's ``error`` column and the run log) and the run goes on;
-    ``BatchResult.ok`` is False if any input failed.
+    ``BatchResult.ok`` is False if any input failed. A task starts by removing
+    its input's old done marker and, if it fails, removes the outputs it may
+    have written, so an input has either a marker and complete outputs or
+    neither. A worker that dies is replaced by Dask and its task retried on
+    another worker (``distributed.scheduler.allowed-failures`` times); an input
+    that kills every worker trying it is recorded as failed, with why.
+    Temporaries (``.<name>.<random>.part``) left by a process that died while
+    writing are removed at the start and end of a run. One run at a time may
+    use an output folder.
 Long records
     HDF5 channels of :data:`LONG_RECORD_SAMPLES` samples or more are streamed
     from the file through :func:`dsp.blocks.run_in_blocks` (equal to the whole-
@@ -51,6 +59,7 @@ Worker settings
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import glob
 import hashlib
@@ -83,6 +92,8 @@ LONG_RECORD_SAMPLES = 1 << 24
 #: GIL every 10 ms. Both measured in ``bench/bench_campaign.py``.
 WORKER_CONFIG = {"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None,
                  "distributed.worker.profile.enabled": False}
+#: ``run_batch(scheduler=SYNCHRONOUS)`` runs every input in the calling process, without Dask.
+SYNCHRONOUS = "synchronous"
 #: File name endings read as recordings when an input is a folder.
 RECORDING_SUFFIXES = (".csv", ".tsv", ".wav", ".h5", ".hdf5", ".npz")
 MARKER_VERSION = 1
@@ -192,16 +203,21 @@ def process_input(path: str, session_data: dict, out: str, name: str, output_for
     path_obj, out_dir = Path(path), Path(out)
     record: dict[str, Any] = {"input": str(path_obj), "name": name, "pid": os.getpid(),
                               "host": platform.node()}
+    from .io import FORMATS
+
+    output = out_dir / "processed" / f"{name}{FORMATS[output_format][0]}"
+    summary_file = out_dir / "summaries" / f"{name}.json"
+    marker_file = out_dir / "done" / f"{name}.json"
     try:
+        # An old marker would vouch for outputs this attempt is about to replace: it goes first.
+        marker_file.unlink(missing_ok=True)
         session = Session.from_dict(session_data, where="session")
         key = _input_key(path_obj)
         record["input_sha256"] = file_sha256(path_obj)
         recording, summaries = _process_file(session, path_obj, block_samples)
-        from .io import FORMATS, write
+        from .io import write
 
-        output = out_dir / "processed" / f"{name}{FORMATS[output_format][0]}"
         write(recording, output, format=output_format)
-        summary_file = out_dir / "summaries" / f"{name}.json"
         write_text_atomic(summary_file, json.dumps({"input": str(path_obj), "channels": summaries},
                                                    allow_nan=False) + "\n")
         record.update(status="done", channels=summaries, outputs=[str(output.relative_to(out_dir))],
@@ -211,17 +227,25 @@ def process_input(path: str, session_data: dict, out: str, name: str, output_for
                   "output_format": output_format, "outputs": record["outputs"],
                   "summary": str(summary_file.relative_to(out_dir)), "finished_utc": _utc_now(),
                   "sigtune": __version__}
-        write_text_atomic(out_dir / "done" / f"{name}.json", json.dumps(marker, indent=1) + "\n")  # last
+        write_text_atomic(marker_file, json.dumps(marker, indent=1) + "\n")  # last
     except Exception as err:  # noqa: BLE001 - any failure of one file is recorded and the run goes on
         record.update(status="failed", error=_error_text(err, path_obj), error_type=type(err).__name__)
         if not isinstance(err, (SigtuneError, OSError)):
             record["traceback"] = traceback.format_exc(limit=8)
+        # No marker, so no outputs either: a file in processed/ or summaries/ is always a finished one.
+        sidecar = [output.with_name(output.name + ".json")] if output_format == "wav" else []
+        for leftover in (output, *sidecar, summary_file):
+            with contextlib.suppress(OSError):
+                leftover.unlink(missing_ok=True)
     record["seconds"] = time.perf_counter() - started
     record["peak_rss_bytes"] = _peak_rss_bytes()
     return record
 
 
 def _error_text(err: BaseException, path: Path) -> str:
+    if isinstance(err, FileNotFoundError) and Path(err.filename or "") == path:
+        return (f"{path}: not found ({err.strerror}); was it deleted or moved after the run started? "
+                f"The other inputs went on")
     if isinstance(err, SigtuneError):
         text = str(err)
         return text if str(path) in text else f"{path}: {text}"
@@ -249,11 +273,35 @@ def _marker_matches(out: Path, name: str, path: Path, session_hash: str, output_
     return marker if same and complete else None
 
 
-def _skipped_record(out: Path, name: str, path: Path, marker: dict) -> dict:
-    summary = json.loads((out / marker["summary"]).read_text(encoding="utf-8"))
+def _skipped_record(out: Path, name: str, path: Path, marker: dict) -> dict | None:
+    """The record of an input done by an earlier run, or None if its summary cannot be read (redo it)."""
+    try:
+        summary = json.loads((out / marker["summary"]).read_text(encoding="utf-8"))
+        summary["channels"].items()
+    except (OSError, ValueError, TypeError, KeyError, AttributeError):
+        return None
     return {"input": str(path), "name": name, "status": "skipped", "channels": summary["channels"],
             "outputs": marker["outputs"], "input_sha256": marker.get("input_sha256"),
             "done_utc": marker.get("finished_utc")}
+
+
+#: Sub-folders of the output folder that sigtune writes into (and the folder itself).
+_OUTPUT_FOLDERS = ("", "processed", "summaries", "done", "logs")
+
+
+def _remove_temporaries(out: Path) -> list[str]:
+    """Remove the temporaries of :func:`dsp._atomic.atomic_path` (``.<name>.<random>.part``) left in the
+    output folders by a process that died while writing; return their paths relative to ``out``.
+
+    Only one run at a time may use an output folder: another run's temporaries would be removed too.
+    """
+    removed = []
+    for folder in _OUTPUT_FOLDERS:
+        for tmp in sorted((out / folder).glob(".*.part")):
+            with contextlib.suppress(FileNotFoundError):
+                tmp.unlink()
+                removed.append(str(tmp.relative_to(out)))
+    return removed
 
 
 # ------------------------------------------------------------------ summary table
@@ -418,7 +466,10 @@ def run_batch(session, inputs, out, workers: int = 2, scheduler: str | None = No
     workers : int, default 2
         Processes of the local cluster (one thread each).
     scheduler : str, optional
-        Address of an existing Dask scheduler, used instead of a local cluster.
+        Address of an existing Dask scheduler, used instead of a local cluster;
+        ``"synchronous"`` runs every input in this process, one after another,
+        without Dask (for debugging and tests: a debugger or a patched
+        function sees the work).
     force : bool, default False
         Redo inputs already done with this session.
     output_format : str, default ``"h5"``
@@ -447,10 +498,12 @@ def run_batch(session, inputs, out, workers: int = 2, scheduler: str | None = No
     result = BatchResult(out=out, session_hash=session_hash)
     records: dict[Path, dict] = {}
     todo = []
+    removed = _remove_temporaries(out)  # of an earlier run whose process died mid-write
     for path in paths:
         marker = None if force else _marker_matches(out, names[path], path, session_hash, output_format)
-        if marker is not None:
-            records[path] = _skipped_record(out, names[path], path, marker)
+        skipped = None if marker is None else _skipped_record(out, names[path], path, marker)
+        if skipped is not None:
+            records[path] = skipped
         else:
             todo.append(path)
     if progress and records:
@@ -473,13 +526,14 @@ def run_batch(session, inputs, out, workers: int = 2, scheduler: str | None = No
             else:
                 result.failed[record["input"]] = record["error"]
         result.n_samples = sum(r.get("n_samples", 0) for r in ordered if r["status"] == "done")
+        removed += _remove_temporaries(out)  # of workers that died mid-write in this run
         result.summary_csv, result.summary_json = _write_summaries(out, ordered, session_hash)
         result.seconds = time.perf_counter() - started
         log = {"status": status, "started_utc": started_utc, "finished_utc": _utc_now(),
                "seconds": result.seconds, "session_file": session_file, "session_hash": session_hash,
                "session": session.to_dict(), "versions": _versions(),
                "cluster": {"scheduler": scheduler, "workers": None if scheduler else workers},
-               "force": force, "output_format": output_format,
+               "force": force, "output_format": output_format, "temporaries_removed": removed,
                "counts": {"inputs": len(paths), "done": len(result.done), "skipped": len(result.skipped),
                           "failed": len(result.failed)},
                "samples_per_s": result.samples_per_s, "files": ordered}
@@ -495,7 +549,10 @@ def _run_tasks(todo, names, session, out, output_format, block_samples, workers,
     from tqdm import tqdm
 
     session_data = session.to_dict()
-    todo = sorted(todo, key=lambda p: p.stat().st_size, reverse=True)  # longest first: less idle time at the end
+    todo = sorted(todo, key=_size_or_zero, reverse=True)  # longest first: less idle time at the end
+    if scheduler == SYNCHRONOUS:
+        _run_in_process(todo, names, session_data, out, output_format, block_samples, progress, records)
+        return
     with _Cluster(workers, scheduler) as client, tqdm(total=len(todo), unit="file", desc="sigtune batch",
                                                       file=sys.stderr, disable=not progress) as bar:
         futures = {client.submit(process_input, str(p), session_data, str(out), names[p], output_format,
@@ -508,10 +565,45 @@ def _run_tasks(todo, names, session, out, output_format, block_samples, workers,
                 record = future.result()
             except Exception as err:  # noqa: BLE001 - a lost worker or task: record it, go on
                 record = {"input": str(path), "name": names[path], "status": "failed",
-                          "error": f"{path}: the Dask task failed ({type(err).__name__}: {err})",
-                          "error_type": type(err).__name__}
+                          "error": _task_error_text(err, path), "error_type": type(err).__name__}
             records[path] = record
-            samples += record.get("n_samples", 0)
-            bar.set_postfix_str(f"{samples / max(time.perf_counter() - t0, 1e-9) / 1e6:.2f} Msamples/s, "
-                                f"{sum(r['status'] == 'failed' for r in records.values())} failed", refresh=False)
-            bar.update(1)
+            samples = _advance(bar, record, records, samples, t0)
+
+
+def _task_error_text(err: BaseException, path: Path) -> str:
+    """Why a Dask task ended without a record (process_input itself never raises)."""
+    if type(err).__name__ == "KilledWorker":  # distributed.scheduler.KilledWorker
+        return (f"{path}: the worker process died while processing this file, on every worker that tried it "
+                f"(out of memory, a crash in a compiled library, or killed from outside); the other inputs "
+                f"went on. Rerun to retry it; run it alone with --workers 1 to see whether it fails again "
+                f"({err})")
+    return f"{path}: the Dask task failed ({type(err).__name__}: {err})"
+
+
+def _advance(bar, record: dict, records: dict, samples: int, t0: float) -> int:
+    """Count one finished input on the progress bar; return the samples processed so far."""
+    samples += record.get("n_samples", 0)
+    bar.set_postfix_str(f"{samples / max(time.perf_counter() - t0, 1e-9) / 1e6:.2f} Msamples/s, "
+                        f"{sum(r['status'] == 'failed' for r in records.values())} failed", refresh=False)
+    bar.update(1)
+    return samples
+
+
+def _size_or_zero(path: Path) -> int:
+    """The file's size; 0 for a file gone since the inputs were listed (its task reports it)."""
+    try:
+        return path.stat().st_size
+    except OSError:
+        return 0
+
+
+def _run_in_process(todo, names, session_data, out, output_format, block_samples, progress, records) -> None:
+    """``scheduler="synchronous"``: every input in this process, one after another (debugging, tests)."""
+    from tqdm import tqdm
+
+    t0, samples = time.perf_counter(), 0
+    with tqdm(total=len(todo), unit="file", desc="sigtune batch", file=sys.stderr, disable=not progress) as bar:
+        for path in todo:
+            record = process_input(str(path), session_data, str(out), names[path], output_format, block_samples)
+            records[path] = record
+            samples = _advance(bar, record, records, samples, t0)

@@ -35,7 +35,12 @@ A session file is JSON of our own layout, described by the JSON Schema
 Loading is plain :func:`json.loads` of at most :data:`MAX_SESSION_BYTES`
 bytes nested at most :data:`MAX_NESTING` deep, with duplicate keys and
 ``NaN``/``Infinity`` refused; steps are built from a registry of known ops.
-Nothing in a session file is ever evaluated as code. Every problem raises
+Non-finite numbers, numbers beyond the float range and lone surrogates are
+refused anywhere in the data, and the schema's size limits are checked
+before the items of a list (a 10 MiB file loads or fails in about 2 s).
+Nothing in a session file is ever evaluated as code. A server passes the
+folder it serves as ``data_root`` (:meth:`Session.load`, :meth:`Session.loads`,
+:func:`resolve_source`): a source path leading outside it is refused. Every problem raises
 :class:`SigtuneError` naming the file and the JSON path (``chain[2].cutoff``)
 with the valid values.
 
@@ -55,7 +60,9 @@ import copy
 import dataclasses
 import functools
 import hashlib
+import itertools
 import json
+import math
 import os
 import re
 import warnings
@@ -74,7 +81,7 @@ from .errors import SigtuneError, SigtuneWarning
 from .steps import Chain, step_from_dict
 from .units import QUANTITIES, sensitivity_factor, unit_info
 
-__all__ = ["Session", "SessionResult", "apply_setup", "describe_source", "file_sha256"]
+__all__ = ["Session", "SessionResult", "apply_setup", "describe_source", "file_sha256", "resolve_source"]
 
 FORMAT_TAG = "sigtune-session"
 FORMAT_VERSION = 1
@@ -84,6 +91,12 @@ MAX_SESSION_BYTES = 10 * 1024 * 1024
 MAX_NESTING = 64
 #: Most problems listed in one error message.
 MAX_REPORTED = 10
+#: Most schema problems collected before the message is made (hostile files can hold millions).
+MAX_COLLECTED = 1000
+#: Longest text of one problem in an error message (the value shown is cut, not the JSON path).
+MAX_PROBLEM_CHARS = 300
+#: Most digits of a whole number in a session file (Python refuses to convert over 4300).
+MAX_INT_DIGITS = 100
 SCHEMA_PATH = Path(__file__).with_name("session.schema.json")
 #: A source path starting with this names a built-in demo recording, not a file.
 DEMO_SOURCE_PREFIX = "demo:"
@@ -109,19 +122,48 @@ def _schema() -> dict:
     return json.loads(SCHEMA_PATH.read_text(encoding="utf-8"))
 
 
+#: Keywords that look at every item of an array / every member of an object, and the size limit
+#: that makes looking pointless: a hostile file's list of 10^6 steps or channels is refused by
+#: its maxItems alone, instead of checking each item (minutes) and collecting 10^6 errors.
+_SIZE_GUARDED = {"items": ("maxItems", list), "prefixItems": ("maxItems", list),
+                 "contains": ("maxItems", list), "uniqueItems": ("maxItems", list),
+                 "properties": ("maxProperties", dict), "additionalProperties": ("maxProperties", dict),
+                 "patternProperties": ("maxProperties", dict), "propertyNames": ("maxProperties", dict)}
+
+
+def _size_guarded(keyword: str, check):
+    limit_keyword, kind = _SIZE_GUARDED[keyword]
+
+    def guarded(validator, value, instance, schema):
+        limit = schema.get(limit_keyword)
+        if limit is not None and isinstance(instance, kind) and len(instance) > limit:
+            return  # the limit's own error reports the container
+        yield from check(validator, value, instance, schema)
+
+    return guarded
+
+
 @functools.cache
 def _validator(definition: str | None = None):
-    from jsonschema import Draft202012Validator  # a dependency; imported on first use
+    from jsonschema import Draft202012Validator, validators  # a dependency; imported on first use
 
     schema = _schema()
     if definition is not None:  # one of the $defs (an older layout) as the root
         schema = {"$schema": schema["$schema"], "$defs": schema["$defs"], "$ref": f"#/$defs/{definition}"}
     Draft202012Validator.check_schema(schema)
-    return Draft202012Validator(schema)
+    # JSON Schema counts 3.0 as an integer; Python does not (a band fraction of 3.0 cannot index a table)
+    strict_integers = Draft202012Validator.TYPE_CHECKER.redefine(
+        "integer", lambda checker, value: isinstance(value, int) and not isinstance(value, bool))
+    guarded = validators.extend(Draft202012Validator, {
+        keyword: _size_guarded(keyword, Draft202012Validator.VALIDATORS[keyword]) for keyword in _SIZE_GUARDED},
+        type_checker=strict_integers)
+    return guarded(schema)
 
 
 def _show(value) -> str:
-    text = json.dumps(value)
+    if isinstance(value, str) and len(value) > 60:
+        value = value[:60]  # of a text of megabytes only the start is shown: do not encode it all
+    text = json.dumps(value, default=repr)
     return text if len(text) <= 60 else text[:57] + "..."
 
 
@@ -169,13 +211,21 @@ def _describe(error) -> tuple[str, str]:
 def _raise_problems(problems: list[tuple[str, str]], where: str | None) -> None:
     if not problems:
         return
-    shown = [f"{path}: {message}" for path, message in problems[:MAX_REPORTED]]
+    shown = [_cut(f"{path}: {message}") for path, message in problems[:MAX_REPORTED]]
     more = len(problems) - len(shown)
-    raise SigtuneError("; ".join(shown) + (f"; and {more} more" if more else ""), where)
+    at_least = "at least " if len(problems) >= MAX_COLLECTED else ""
+    raise SigtuneError("; ".join(shown) + (f"; and {at_least}{more} more" if more else ""), where)
+
+
+def _cut(text: str) -> str:
+    """One problem's text, cut to :data:`MAX_PROBLEM_CHARS` (a step's own check may show a huge value)."""
+    text = " ".join(text.splitlines())
+    return text if len(text) <= MAX_PROBLEM_CHARS else text[:MAX_PROBLEM_CHARS - 3] + "..."
 
 
 def _check_schema(data: dict, where: str | None, definition: str | None = None) -> None:
-    errors = sorted(_validator(definition).iter_errors(data), key=lambda e: [str(p) for p in e.absolute_path])
+    found = itertools.islice(_validator(definition).iter_errors(data), MAX_COLLECTED)
+    errors = sorted(found, key=lambda e: [str(p) for p in e.absolute_path])
     _raise_problems([_describe(e) for e in errors], where)
 
 
@@ -193,22 +243,70 @@ def _refuse_constant(name):
     raise SigtuneError(f"{name} is not a JSON number; write a finite number or null")
 
 
-def _nesting(value) -> int:
-    """Depth of nested arrays/objects (iterative: hostile input cannot exhaust the stack)."""
-    deepest, stack = 0, [(value, 1)]
+def _finite_float(text: str) -> float:
+    value = float(text)
+    if not math.isfinite(value):  # 1e400: Python reads it as infinity
+        raise SigtuneError(f"the number {_show(text)} is beyond the largest a session can hold (about 1.8e308); "
+                           f"write a finite number or null")
+    return value
+
+
+def _bounded_int(text: str) -> int:
+    if len(text.lstrip("-")) > MAX_INT_DIGITS:
+        raise SigtuneError(f"a whole number of {len(text.lstrip('-'))} digits ({_show(text)}); a session's whole "
+                           f"numbers have at most {MAX_INT_DIGITS} digits")
+    return int(text)
+
+
+_SURROGATE = re.compile(r"[\ud800-\udfff]")
+_NESTED_TOO_DEEPLY = f"nests deeper than {MAX_NESTING} levels; a session file needs about 6"
+
+
+def _escape_breaks(text: str | None) -> str | None:
+    return None if text is None else text.replace("\r", "\\r").replace("\n", "\\n")
+
+
+def _bad_scalar(value) -> str | None:
+    """Why ``value`` cannot be in a session (it could not be saved as JSON, or used as text), or None."""
+    if type(value) is float and not math.isfinite(value):
+        return f"is {value}, not a finite number; a session file stores finite numbers or null"
+    if type(value) is str and _SURROGATE.search(value):
+        return ("holds a lone UTF-16 surrogate (a \\ud800-\\udfff escape without its pair), which is not "
+                "text; remove it")
+    return None
+
+
+def _scan(data, where: str | None) -> None:
+    """Refuse what no schema keyword catches, anywhere in ``data``: nesting deeper than
+    :data:`MAX_NESTING`, NaN and infinities, lone surrogates in text (keys too).
+
+    Iterative, so a hostile input cannot exhaust the stack; a problem names its JSON path.
+    """
+    stack = [(data, 1, ())]
     while stack:
-        item, depth = stack.pop()
-        if isinstance(item, (dict, list)):
-            deepest = max(deepest, depth)
-            if depth > MAX_NESTING:
-                return depth
-            stack.extend((v, depth + 1) for v in (item.values() if isinstance(item, dict) else item))
-    return deepest
+        item, depth, path = stack.pop()
+        members = item.items() if isinstance(item, dict) else enumerate(item)
+        for key, value in members:
+            problem = _bad_scalar(key) if isinstance(key, str) else None
+            if isinstance(value, (dict, list)):
+                if depth >= MAX_NESTING:
+                    raise SigtuneError(_NESTED_TOO_DEEPLY, where)
+                if value:  # an empty container holds nothing to check
+                    stack.append((value, depth + 1, path + (key,)))
+            elif problem is None:
+                problem = _bad_scalar(value)
+            if problem is not None:
+                raise SigtuneError(f"{_path_text(path + (key,))}: {problem}", where)
 
 
 def parse_session_text(text: str | bytes, where: str | None = None):
-    """Parse session JSON text (or UTF-8 bytes) within the size and nesting limits; return the data."""
-    size = len(text if isinstance(text, bytes) else text.encode("utf-8"))
+    """Parse session JSON text (or UTF-8 bytes) within the size and nesting limits; return the data.
+
+    Also refused: duplicate keys, ``NaN``/``Infinity``, numbers beyond the
+    float range (``1e400``) or of more than :data:`MAX_INT_DIGITS` digits, and
+    lone surrogates in text.
+    """
+    size = len(text if isinstance(text, bytes) else text.encode("utf-8", "surrogatepass"))
     if size > MAX_SESSION_BYTES:
         raise SigtuneError(f"is {size} bytes; a session file is at most {MAX_SESSION_BYTES} bytes "
                            f"({MAX_SESSION_BYTES // 2**20} MiB). Is this really a session file?", where)
@@ -220,17 +318,16 @@ def parse_session_text(text: str | bytes, where: str | None = None):
                                where) from None
     try:
         data = json.loads(text.lstrip("\ufeff"), object_pairs_hook=_refuse_duplicates,
-                          parse_constant=_refuse_constant)
+                          parse_constant=_refuse_constant, parse_float=_finite_float, parse_int=_bounded_int)
     except json.JSONDecodeError as err:
         raise SigtuneError(f"is not valid JSON: {err.msg} at line {err.lineno} column {err.colno}",
                            where) from None
     except RecursionError:
-        raise SigtuneError(f"nests deeper than {MAX_NESTING} levels; a session file needs about 6",
-                           where) from None
+        raise SigtuneError(_NESTED_TOO_DEEPLY, where) from None
     except SigtuneError as err:
         raise err.located(where) if where else err from None
-    if _nesting(data) > MAX_NESTING:
-        raise SigtuneError(f"nests deeper than {MAX_NESTING} levels; a session file needs about 6", where)
+    if isinstance(data, (dict, list)):
+        _scan(data, where)
     return data
 
 
@@ -265,9 +362,11 @@ def _current_layout(data, where: str | None) -> tuple[dict, int | None]:
     if isinstance(version, bool) or not isinstance(version, int) or version < 0:
         raise SigtuneError(f"version: must be a whole number >= 0; got {_show(version)}", where)
     if version > FORMAT_VERSION:
-        raise SigtuneError(f"version: the file is session version {version}, written by sigtune "
-                           f"{data.get('sigtune', '(unknown)')}; this sigtune ({__version__}) reads versions "
-                           f"up to {FORMAT_VERSION}. Upgrade sigtune to open it", where)
+        writer = data.get("sigtune", "(unknown)")
+        writer = writer[:64] if isinstance(writer, str) else _show(writer)
+        raise SigtuneError(f"version: the file is session version {_show(version)}, written by sigtune "
+                           f"{writer}; this sigtune ({__version__}) reads versions up to {FORMAT_VERSION}. "
+                           f"Upgrade sigtune to open it", where)
     original = version
     while version < FORMAT_VERSION:
         definition, lift = MIGRATIONS[version]
@@ -331,6 +430,9 @@ def _check_source(source, where: str | None) -> dict | None:
     if unknown:
         raise SigtuneError(f"source.{unknown[0]}: unknown key; valid keys: path, sha256, channels", where)
     path = source.get("path")
+    if path is not None and "\0" in str(path):  # no file system allows it; os functions would raise ValueError
+        raise SigtuneError("source.path: holds a NUL character, which no file name can; give the recording's "
+                           "path relative to the session file", where)
     channels = source.get("channels")
     return {"path": None if path is None else str(path), "sha256": source.get("sha256"),
             "channels": None if channels is None else [str(c) for c in channels]}
@@ -340,6 +442,48 @@ def _is_file(source: Mapping | None) -> bool:
     """True if ``source`` names a recording file (not nothing, not a built-in demo)."""
     path = (source or {}).get("path")
     return bool(path) and not str(path).startswith(DEMO_SOURCE_PREFIX)
+
+
+def resolve_source(session: "Session", data_root: str | os.PathLike) -> Path | None:
+    """Return the session's source file, resolved, if it lies inside the folder ``data_root``.
+
+    The path (relative paths are taken relative to ``data_root``) is resolved
+    with every ``..`` and symbolic link followed (:meth:`pathlib.Path.resolve`),
+    so neither ``../``, an absolute path nor a link pointing out of the folder
+    reaches another file. Open the path returned, not the one in the session.
+    Returns None when the session names no file (none, or a built-in demo).
+
+    Raises
+    ------
+    SigtuneError
+        ``source.path`` leads outside ``data_root``, or cannot be resolved
+        (a loop of symbolic links).
+
+    Examples
+    --------
+    >>> root = Path("/no-such-folder/sigtune-data")  # need not exist
+    >>> str(resolve_source(Session(source={"path": "site_a/run_1.h5"}), root))
+    '/no-such-folder/sigtune-data/site_a/run_1.h5'
+    >>> resolve_source(Session(source={"path": "../elsewhere.h5"}), root)  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    dsp.errors.SigtuneError: source.path: '../elsewhere.h5' leads outside the data folder ...
+    """
+    if not _is_file(session.source):
+        return None
+    given = session.source["path"]
+    root = Path(data_root).resolve()
+    where = f"{session.location}: source.path" if session.location else "source.path"
+    try:
+        resolved = (root / given).resolve()  # an absolute `given` replaces `root`
+    except (OSError, RuntimeError) as err:  # RuntimeError: a loop of symbolic links (Python < 3.13)
+        raise SigtuneError(f"{given!r} cannot be resolved ({err}); give a recording inside the data folder "
+                           f"{str(root)!r}", where) from None
+    if not resolved.is_relative_to(root):
+        raise SigtuneError(f"{given!r} leads outside the data folder {str(root)!r} (after following '..' and "
+                           f"symbolic links); only recordings inside it are opened. Put the recording in the "
+                           f"data folder and give its path relative to the session file", where)
+    return resolved
 
 
 def file_sha256(path: str | os.PathLike, block_bytes: int = 1 << 22) -> str:
@@ -490,12 +634,15 @@ class Session:
 
     # ---- files ----
     @classmethod
-    def load(cls, path: str | os.PathLike, *, verify_source: bool = True) -> "Session":
+    def load(cls, path: str | os.PathLike, *, verify_source: bool = True,
+             data_root: str | os.PathLike | None = None) -> "Session":
         """Read a session file (any version up to :data:`FORMAT_VERSION`).
 
         The source path is resolved against the file's folder. With
         ``verify_source`` the source's SHA-256 is checked (a mismatch or a
-        missing file warns; see :meth:`check_source`).
+        missing file warns; see :meth:`check_source`). With ``data_root`` (the
+        folder a server lets its users read) a source path leading outside it
+        is refused (see :func:`resolve_source`).
         """
         path = Path(path)
         size = path.stat().st_size  # FileNotFoundError names the path
@@ -504,19 +651,32 @@ class Session:
                                f"({MAX_SESSION_BYTES // 2**20} MiB). Is this really a session file?", str(path))
         with open(path, "rb") as fh:
             raw = fh.read(MAX_SESSION_BYTES + 1)
-        session = cls.from_dict(parse_session_text(raw, str(path)), where=str(path), base=path.parent)
+        session = cls._from_checked(parse_session_text(raw, str(path)), str(path), path.parent)
         session.location = path
+        if data_root is not None:
+            resolve_source(session, data_root)
         if verify_source:
-            session.check_source()
+            session.check_source(data_root=data_root)
         return session
 
     @classmethod
     def loads(cls, text: str | bytes, *, where: str | None = None, base: str | os.PathLike | None = None,
-              verify_source: bool = False) -> "Session":
-        """Read a session from JSON text or bytes (an upload, say); ``base`` resolves a relative source."""
-        session = cls.from_dict(parse_session_text(text, where), where=where, base=base)
+              verify_source: bool = False, data_root: str | os.PathLike | None = None) -> "Session":
+        """Read a session from JSON text or bytes (an upload, say); ``base`` resolves a relative source.
+
+        With ``data_root`` a source path leading outside that folder is refused
+        (see :func:`resolve_source`); a relative path is then read relative to
+        ``base``, else to ``data_root``.
+        """
+        base = data_root if base is None else base
+        session = cls._from_checked(parse_session_text(text, where), where, base)
+        if data_root is not None:
+            try:
+                resolve_source(session, data_root)
+            except SigtuneError as err:
+                raise SigtuneError(f"{err.where}: {err.detail}", where) from None
         if verify_source:
-            session.check_source()
+            session.check_source(data_root=data_root)
         return session
 
     @classmethod
@@ -524,9 +684,29 @@ class Session:
         """Build a session from file data: check the version (migrating older ones) and the schema.
 
         ``where`` (a file name) prefixes error messages; ``base`` is the
-        folder a relative ``source.path`` is resolved against.
+        folder a relative ``source.path`` is resolved against. ``data`` is
+        not changed, and the session shares no part of it.
         """
-        data, migrated_from = _current_layout(copy.deepcopy(data), where)
+        if isinstance(data, (dict, list)):
+            _scan(data, where)
+        session = cls._from_checked(data, where, base)
+        session.view, session.analysis = copy.deepcopy(session.view), copy.deepcopy(session.analysis)
+        return session
+
+    @classmethod
+    def _from_checked(cls, data, where: str | None, base) -> "Session":
+        """:meth:`from_dict` of data already scanned (parsed here or by :func:`_scan`); may share parts of it."""
+        try:
+            return cls._build(data, where, base)
+        except SigtuneError as err:
+            if "\n" not in str(err) and "\r" not in str(err):
+                raise
+            # a key or value with a line break, quoted raw by a step's or setting's own check: one line
+            raise SigtuneError(_escape_breaks(err.detail), _escape_breaks(err.where)) from None
+
+    @classmethod
+    def _build(cls, data, where: str | None, base) -> "Session":
+        data, migrated_from = _current_layout(data, where)
         _check_schema(data, where)
         chain = _build_chain(data.get("chain", []), where)
         try:
@@ -567,9 +747,10 @@ class Session:
         _check_schema(data, str(path))
         try:
             text = json.dumps(data, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+            size = len(text.encode("utf-8"))  # UnicodeEncodeError (a ValueError): a lone surrogate
         except (TypeError, ValueError) as err:
             raise SigtuneError(f"view or notes hold a value JSON cannot store ({err})", str(path)) from None
-        if len(text.encode("utf-8")) > MAX_SESSION_BYTES:
+        if size > MAX_SESSION_BYTES:
             raise SigtuneError(f"the session would exceed {MAX_SESSION_BYTES} bytes; trim the view state",
                                str(path))
         write_text_atomic(path, text)
@@ -593,15 +774,19 @@ class Session:
         """The source recording's file (absolute once loaded from a file); None for none or a demo."""
         return Path(self.source["path"]) if _is_file(self.source) else None
 
-    def check_source(self) -> str:
+    def check_source(self, *, data_root: str | os.PathLike | None = None) -> str:
         """Compare the source file's SHA-256 with the recorded one.
 
         Returns ``"match"``, ``"mismatch"``, ``"missing"`` or ``"unchecked"``
         (no path or no hash recorded). A mismatch or a missing file is
         reported with a :class:`SigtuneWarning`, not an error: the settings
-        remain valid for other recordings.
+        remain valid for other recordings. With ``data_root`` a source
+        leading outside that folder raises :class:`SigtuneError` before any
+        file is opened (see :func:`resolve_source`).
         """
         path, expected = self.source_path, (self.source or {}).get("sha256")
+        if data_root is not None:
+            path = resolve_source(self, data_root)
         if path is None or not expected:
             return "unchecked"
         where = f"{self.location}: " if self.location else ""

@@ -295,7 +295,7 @@ def _resolve_nperseg(n, fs, segment_s, nperseg, where, cap_s, divisor) -> tuple[
     longest = f"at most {n} samples (segment_s <= {n / fs:g} s) for this record"
     if segment_s is not None:
         seconds = check_number(segment_s, "segment_s", low=0.0, low_open=True, unit="s")
-        nperseg = int(round(seconds * fs))
+        nperseg = int(round(seconds * fs)) if seconds * fs <= n else n + 1  # 1e308 s must not overflow int()
         if nperseg < 4 or nperseg > n:
             raise SigtuneError(f"a segment of {seconds:g} s is {nperseg} samples at fs={fs:g} Hz; "
                                f"needs at least 4 samples ({4 / fs:g} s) and {longest}", "segment_s")

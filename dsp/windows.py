@@ -54,7 +54,7 @@ def resolve_window(window) -> tuple[str, str | tuple[str, float]]:
         name, beta = window
     elif isinstance(window, str):
         name, _, beta_text = window.strip().lower().partition(":")
-        beta = beta_text if beta_text else None
+        beta = _parse_beta(beta_text, window) if beta_text else None
     else:
         raise _invalid(window, "window must be a name or ('kaiser', beta)")
     if name not in WINDOWS:
@@ -68,6 +68,14 @@ def resolve_window(window) -> tuple[str, str | tuple[str, float]]:
         raise _invalid(window, "the Kaiser window needs its shape factor beta (e.g. 8.6)")
     beta = check_number(beta, "window (Kaiser beta)", low=0.0, high=_KAISER_BETA_MAX)
     return f"kaiser:{beta:g}", ("kaiser", beta)
+
+
+def _parse_beta(text: str, window) -> float:
+    """The Kaiser beta written after the colon of ``"kaiser:8.6"``."""
+    try:
+        return float(text)
+    except ValueError:
+        raise _invalid(window, "the Kaiser beta must be a number") from None
 
 
 def window_samples(window, n: int) -> np.ndarray:

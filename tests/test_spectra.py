@@ -416,3 +416,12 @@ def test_spectrogram_times_skip_edge_zones():
     sg = spectrogram(ch.replace(history=(entry,)), nperseg=500, overlap=0.0)
     assert sg.times[0] == pytest.approx(3.001 + 0.25)
     assert sg.settings["valid_duration_s"] == pytest.approx(8.999)
+
+
+def test_an_astronomical_segment_length_is_refused_not_overflowed():
+    # regression: int(round(1e308 * fs)) raised OverflowError instead of the project's error
+    from dsp import Channel, SigtuneError, psd
+
+    ch = Channel(np.sin(np.arange(4000) / 10.0), 1000.0)
+    with pytest.raises(SigtuneError, match=r"segment_s: a segment of 1e\+308 s .* at most 4000 samples"):
+        psd(ch, segment_s=1e308)

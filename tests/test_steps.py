@@ -103,3 +103,9 @@ def test_crop_keeps_the_interval_and_shifts_start_time():
 def test_gain_refuses_zero():
     with pytest.raises(SigtuneError, match="factor: must be non-zero"):
         Gain(0.0)
+
+
+@pytest.mark.parametrize("value", [True, "5", "2.0"])
+def test_numeric_settings_refuse_booleans_and_text(value):
+    with pytest.raises(SigtuneError, match=r"factor: must be a number; got"):
+        Gain(value)
