@@ -1,25 +1,33 @@
 """sigtune's signal-processing core: a plain numpy/scipy library.
 
 The app, the batch runner, scripts and notebooks all call it the same way.
-It never imports a UI library.
+It never imports a UI library. Every function takes rates in Hz and times in
+s, and every channel carries its unit; bad input raises SigtuneError with a
+message that says where the problem is and what would be valid.
 
 Data
     Channel, Recording            samples with rate (Hz), unit, quantity and history
-    read, write                   recording files (CSV/TSV, WAV, HDF5, NPZ)
-    convert_units, calibrate_volts, UNITS, QUANTITIES
+    read, write, FORMATS          recording files (CSV/TSV, WAV, HDF5, NPZ): docs/formats.md
+    convert_units, calibrate_volts, sensitivity_factor, UNITS, QUANTITIES
+    demo_recording, write_demo    the invented demo scenarios: docs/demo.md
 Steps (each is data: ``to_dict()`` / ``step_from_dict``; ``apply(channel)``)
-    Chain, Step, step_from_dict
+    Chain, Step, step_from_dict, register_step
     Gain, Calibrate, ConvertUnit, Detrend, Crop
-    Filter, Resample, Integrate, Differentiate, Weighting
-Analysis
-    psd, asd, linear_spectrum, spectrogram, band_levels, band_rms, find_peaks
-    alias_frequency, alias_table, oversampling_ratio, sinc_interpolate
+    Filter (design report, responses, edge_zones), Resample, Integrate, Differentiate, Weighting
+Conditioning and aliasing
+    alias_frequency, alias_table, oversampling_ratio, alias_risk, sinc_interpolate, resample_plan
+    (the function ``resample(channel, fs_out)`` lives in ``dsp.resample``)
+Spectra and bands
+    psd, asd, linear_spectrum, spectrogram, find_peaks, window_properties
+    band_levels, band_rms, iec_bands   (IEC 61260-1 octave and one-third-octave bands)
 Motion and quality
-    integrate, differentiate, compare_integration, audit, advise
+    integrate, differentiate, compare_integration, INTEGRATION_PRESETS
+    audit, check_timebase, split_valid_segments, reverse_arrangements_test, advise
 Evaluation (guidance only: the governing standard and competent professionals decide)
-    weighting_filter, whole_body, hand_arm, severity_zone, machine_severity, building_ppv
-Sessions and campaigns
-    Session, run_batch
+    weighting_filter, whole_body, hand_arm, daily_exposure, severity_zone, machine_severity,
+    building_ppv, CAUTIONS
+Sessions, summaries and campaigns
+    Session, AnalysisSettings, analyse, run_in_blocks, run_batch
 Errors
     SigtuneError (a ValueError), SigtuneWarning
 """

@@ -92,3 +92,17 @@ def test_readme_python_snippets_run(capsys):
     printed = capsys.readouterr().out
     assert "mm/s ['filter', 'integrate']" in printed
     assert "[612.0, 24.6, 49.2]" in printed  # docs/demo.md: the burst, 1x and 2x running speed
+
+
+def test_the_catalogue_names_only_what_exists():
+    import dsp
+
+    listed = re.findall(r"\b([a-z]+_[a-z_0-9]+|[A-Z][A-Za-z]+[a-z][A-Za-z]*|[A-Z_]{4,})\b", dsp.__doc__)
+    known_words = {"ValueError", "Data", "Steps", "Conditioning", "Spectra", "Motion", "Evaluation",
+                   "Sessions", "Errors", "It", "The", "Every", "IEC", "FORMATS", "UNITS", "QUANTITIES",
+                   "CAUTIONS", "INTEGRATION_PRESETS", "CSV", "TSV", "WAV", "HDF5", "NPZ"}
+    missing = [n for n in listed if n not in known_words and not hasattr(dsp, n)
+               and n not in ("to_dict", "step_from_dict", "fs_out")]
+    assert not missing
+    for name in ("FORMATS", "UNITS", "QUANTITIES", "CAUTIONS", "INTEGRATION_PRESETS"):
+        assert hasattr(dsp, name)
