@@ -14,6 +14,7 @@ import tempfile
 from pathlib import Path
 
 from dsp import Recording, SigtuneError
+from dsp._atomic import atomic_path
 
 __all__ = ["MAX_UPLOAD_MB", "CHANNEL_FORMATS", "store_upload", "session_bytes", "save_session",
            "load_session_file", "load_session_bytes", "channel_file"]
@@ -34,7 +35,8 @@ def store_upload(folder, filename: str, data: bytes) -> Path:
                            f"MB. Open it by path instead (type the path on this computer)", "upload")
     name = _SAFE_NAME.sub("_", Path(filename).name).lstrip(".") or "upload"
     path = Path(folder) / name
-    path.write_bytes(data)
+    with atomic_path(path) as tmp:  # an interrupted upload never leaves a half-written file to open
+        tmp.write_bytes(data)
     return path
 
 

@@ -105,7 +105,13 @@ class ExplorerPage:
         # The fast stages run here, synchronously, so the plots are first drawn with data (their ranges
         # come from the first frame); the rest follows on the worker.
         self.show(state.pipeline.run(state.snapshot(), stages=FAST_STAGES), final=False)
-        self.refresh()
+        if doc is None:
+            self.refresh()
+        else:
+            # Served: the rest runs once the browser's websocket is open. Before that every plot update
+            # re-queues itself on the event loop until the page connects, and a bare HTTP GET (no
+            # websocket) would keep a core busy until Bokeh discards the unused session (~20 s).
+            pn.state.onload(self.refresh)
 
     # ---- running ----
     def refresh(self) -> int:
