@@ -9,17 +9,16 @@ from an array already in memory) and writes its output into one new array:
   the step's factor, exactly as the step multiplies the whole array;
 * ``crop`` keeps the part of each block inside the crop, by sample index;
 * causal filters (``filter`` with ``zero_phase=False``) carry their section
-  state from block to block (:meth:`dsp.Filter.block_processor`). The whole-
-  array filter starts in steady state at the record's mean, so the mean of
-  the filter's input is found first by a streaming pass through the stages
-  before it, and the block filter starts at that level. No overlap is
-  needed: the carried state is the whole memory of the filter;
+  state from block to block (:meth:`dsp.Filter.block_processor`), starting
+  in steady state for the first sample of their input as the whole-array
+  filter does. No pre-pass and no overlap are needed: the carried state is
+  the whole memory of the filter;
 * ``integrate`` by the ``time`` method with causal high-passes
   (``zero_phase=False``) runs as the stages the step is made of: conversion to
   SI, mean removal, causal high-pass, then per stage a cumulative trapezoid
   carried across blocks (the same terms summed in the same order), mean
   removal and high-pass again. Each mean comes from a streaming pass, so a
-  velocity takes five passes over the input.
+  velocity takes three passes over the input.
 
 Every other step (zero-phase filtering, which runs backwards from the end;
 resampling, whose polyphase filter and edge padding see the whole record;
@@ -32,9 +31,9 @@ Tolerance
     The result equals ``Chain.apply`` on the whole array to within
     :data:`RELATIVE_TOLERANCE` (1e-9) of the output's peak, for float32 and
     float64 data. The means are summed as numpy sums them (the same pairwise
-    tree, leaf by leaf, see :class:`_NumpyMean`), which matters: a causal
-    high-pass's steady-state start multiplies the mean by state values of
-    order fs / cutoff, and an integration carries it on. With numpy 2.x the
+    tree, leaf by leaf, see :class:`_NumpyMean`), which matters: the
+    integration removes a mean before each high-pass and then carries any
+    rounding difference on through the cumulative sum. With numpy 2.x the
     result is then the whole-array result bit for bit (the tests and the
     10^8-sample bench measure a difference of 0); the tolerance leaves room
     for another numpy's summation order.
@@ -175,12 +174,12 @@ class _Window:
 
 
 class _Causal:
-    def __init__(self, step: Filter, fs: float, level: float, dtype):
-        self.step, self.fs, self.level, self.dtype = step, fs, level, dtype
-        self.blocks = step.block_processor(fs, level)
+    def __init__(self, step: Filter, fs: float, dtype):
+        self.step, self.fs, self.dtype = step, fs, dtype
+        self.blocks = step.block_processor(fs, level=None)  # steady state for the first sample, as apply starts
 
     def fresh(self):
-        return _Causal(self.step, self.fs, self.level, self.dtype)
+        return _Causal(self.step, self.fs, self.dtype)
 
     def process(self, block, start):
         return self.blocks.process(block).astype(self.dtype, copy=False)
@@ -271,20 +270,17 @@ def _pairwise_total(leaves, lo: int, hi: int) -> float:
 
 
 class _NumpyMean:
-    """Mean of a stream, bit for bit ``np.mean(x, dtype=np.float64)`` of the whole array.
+    """Mean of a float64 stream, bit for bit ``np.mean`` of the whole array.
 
-    The whole-array steps remove or start from means taken with numpy, and a
-    causal high-pass's steady state scales the mean by large state values, so
-    the mean must round exactly as numpy's does. For float64 data numpy sums
-    pairwise over the whole array (reproduced here leaf by leaf); for float32
-    data read as float64 it sums each buffer of ``np.getbufsize()`` samples
-    pairwise and adds the buffers one after another.
+    The whole-array integration removes means taken with numpy and then sums
+    cumulatively, which carries any rounding difference on as a ramp, so the
+    mean must round exactly as numpy's does. For float64 data numpy sums
+    pairwise over the whole array; this reproduces that tree leaf by leaf.
     """
 
-    def __init__(self, n: int, dtype):
-        self.n, self.float64 = n, np.dtype(dtype) == np.float64
-        size = np.getbufsize()
-        self.ranges = _pairwise_ranges(0, n) if self.float64 else [(i, min(i + size, n)) for i in range(0, n, size)]
+    def __init__(self, n: int):
+        self.n = n
+        self.ranges = _pairwise_ranges(0, n)
         self.pending: list[np.ndarray] = []
         self.pending_from, self.pending_to, self.next_range, self.sums = 0, 0, 0, []
 
@@ -294,23 +290,17 @@ class _NumpyMean:
         while self.next_range < len(self.ranges) and self.ranges[self.next_range][1] <= self.pending_to:
             lo, hi = self.ranges[self.next_range]
             joined = np.concatenate(self.pending) if len(self.pending) > 1 else self.pending[0]
-            part = joined[lo - self.pending_from:hi - self.pending_from]
-            self.sums.append(float(np.sum(part if self.float64 else part.astype(np.float64))))
+            self.sums.append(float(np.sum(joined[lo - self.pending_from:hi - self.pending_from])))
             self.pending, self.pending_from = [joined[hi - self.pending_from:]], hi
             self.next_range += 1
 
     def mean(self) -> float:
-        if self.float64:
-            return _pairwise_total(iter(self.sums), 0, self.n) / self.n
-        total = 0.0
-        for value in self.sums:
-            total += value
-        return total / self.n
+        return _pairwise_total(iter(self.sums), 0, self.n) / self.n
 
 
-def _stream_mean(source: _Source, stages: list, block_samples: int, n: int, dtype) -> float:
-    """``np.mean`` of the output of ``stages`` (``n`` samples of ``dtype``), by one streaming pass."""
-    accumulator = _NumpyMean(n, dtype)
+def _stream_mean(source: _Source, stages: list, block_samples: int, n: int) -> float:
+    """``np.mean`` of the float64 output of ``stages`` (``n`` samples), by one streaming pass."""
+    accumulator = _NumpyMean(n)
     _stream(source, stages, block_samples, accumulator.add)
     return accumulator.mean()
 
@@ -355,8 +345,7 @@ def _add_stage(step, stages: list, source: _Source, template: Channel, block_sam
         stages.append(_Window(i0, i0 + cropped.n_samples))
         return cropped
     entry = _last_entry_probe(step, template)
-    level = _stream_mean(source, stages, block_samples, template.n_samples, template.data.dtype)
-    stages.append(_Causal(step, template.fs, level, template.data.dtype))
+    stages.append(_Causal(step, template.fs, template.data.dtype))
     return template.replace(history=template.history + (entry,))
 
 
@@ -383,11 +372,11 @@ def _add_time_integration(step, stages: list, source: _Source, template: Channel
     highpass = Filter("butterworth", "highpass", order=step.filter_order, cutoff=f_low, zero_phase=False)
 
     def mean():
-        return _stream_mean(source, stages, block_samples, template.n_samples, np.float64)
+        return _stream_mean(source, stages, block_samples, template.n_samples)
 
     def centre_and_filter():
         stages.append(_Shift(mean()))
-        stages.append(_Causal(highpass, template.fs, mean(), np.float64))
+        stages.append(_Causal(highpass, template.fs, np.float64))
 
     stages.append(_SI(unit_info(template.unit).to_si, template.name))
     centre_and_filter()

@@ -322,10 +322,12 @@ class Filter(Step):
     band-pass, ``10**(-ripple_db/20)`` for an even-order Chebyshev I). That is
     what the filter does to a constant in steady state, so a DC offset causes
     no start-up step, and the padding and the filter's states work on the
-    signal's variations rather than on a large offset. The causal filter does
-    the same by starting :func:`scipy.signal.sosfilt` in its steady state for
-    the mean (``zi = sosfilt_zi(sos) * mean``), which is identical by
-    linearity and saves two passes over the data.
+    signal's variations rather than on a large offset. The causal filter
+    starts :func:`scipy.signal.sosfilt` in its steady state for the first
+    sample (``zi = sosfilt_zi(sos) * x[0]``, as scipy's own documentation
+    does): an offset then causes no start-up step either, only the first
+    sample's departure from it rings, and no pass over the data is spent on
+    the mean. Block processing needs no pre-pass for the same reason.
 
     Zero-phase padding is one settling time long (capped by the record),
     where scipy's default of ``3 * (2 * n_sections + 1)`` samples is far too
@@ -486,16 +488,17 @@ class Filter(Step):
         """First ``n`` samples of one pass's response to a unit step."""
         return signal.sosfilt(np.array(self.sos(fs)), np.ones(check_int(n, "n", low=1)))
 
-    def block_processor(self, fs: float, level: float = 0.0) -> "CausalBlockFilter":
+    def block_processor(self, fs: float, level: float | None = 0.0) -> "CausalBlockFilter":
         """Return a causal block filter for records too long to hold in memory.
 
         Feeding consecutive blocks to its ``process`` gives, concatenated,
         the same output as one :func:`scipy.signal.sosfilt` over the whole
         record started in steady state for a constant input ``level``
-        (``level=0``: plain ``sosfilt``; ``level`` = the record's mean: the same
-        output as :meth:`apply`). Only causal filters stream this way:
-        zero-phase filtering runs backwards from the record's end, so it needs
-        the whole record, or overlapping blocks (:meth:`zero_phase_blocks`).
+        (``level=0``, the default: plain ``sosfilt``; ``level=None``: the
+        first sample, which gives the same output as :meth:`apply`). Only
+        causal filters stream this way: zero-phase filtering runs backwards
+        from the record's end, so it needs the whole record, or overlapping
+        blocks (:meth:`zero_phase_blocks`).
 
         Examples
         --------
@@ -504,6 +507,10 @@ class Filter(Step):
         >>> blocks = Filter(cutoff=50.0).block_processor(1000.0)
         >>> y = np.concatenate([blocks.process(b) for b in np.array_split(x, 7)])
         >>> bool(np.allclose(y, signal.sosfilt(np.array(Filter(cutoff=50.0).sos(1000.0)), x)))
+        True
+        >>> same = Filter(cutoff=50.0).block_processor(1000.0, level=None)
+        >>> y = np.concatenate([same.process(b) for b in np.array_split(x, 7)])
+        >>> bool(np.array_equal(y, Filter(cutoff=50.0).apply(Channel(x, 1000.0)).data))
         True
         """
         if self.zero_phase:
@@ -573,7 +580,6 @@ class Filter(Step):
     def process(self, channel: Channel):
         design = self._design_for(channel)
         x = channel.data
-        mean = float(np.mean(x, dtype=np.float64))
         settle = design.settling_samples
         if x.size < SHORT_RECORD_SETTLING_TIMES * settle:
             warnings.warn(f"channel {channel.name!r}: the record ({channel.duration:g} s) is shorter than "
@@ -582,13 +588,12 @@ class Filter(Step):
                           f"Use a longer record or a higher cutoff", SigtuneWarning, stacklevel=3)
         sos = np.array(design.sos)
         if self.zero_phase:
+            mean = float(np.mean(x, dtype=np.float64))
             y = self._forward_backward(design, sos, x, mean, x.size)
             if self.band in ("lowpass", "bandstop"):  # DC passes: put the mean back at the DC gain
                 y += design.report["dc_gain"] * mean
         else:
-            # Starting in steady state for the mean equals removing it and adding it back at the DC gain
-            # (the filter is linear), without two more passes over the data.
-            y, _ = signal.sosfilt(sos, x, zi=signal.sosfilt_zi(sos) * mean)
+            y = CausalBlockFilter(sos, level=None).process(x)
         info = {"edge_zones_s": self._edge_zones(channel, settle),
                 "settling_time_s": design.report["settling_time_s"],
                 "design_cutoff_hz": list(design.report["design_cutoff_hz"]),
@@ -658,15 +663,23 @@ class CausalBlockFilter:
 
     Made by :meth:`Filter.block_processor`. ``process(block)`` returns the
     filtered block (float64); the state ``zi`` carries over to the next call.
+    ``level`` is the constant input the filter starts in steady state for;
+    ``None`` takes the first sample of the first non-empty block.
     """
 
-    def __init__(self, sos: np.ndarray, level: float = 0.0):
+    def __init__(self, sos: np.ndarray, level: float | None = 0.0):
         self.sos = np.array(sos)  # a writable copy: scipy's sosfilt needs one
-        self.zi = signal.sosfilt_zi(sos) * check_number(level, "level")
+        self._unit_state = signal.sosfilt_zi(self.sos)
+        self.zi = None if level is None else self._unit_state * check_number(level, "level")
 
     def process(self, block) -> np.ndarray:
         """Filter the next block of samples (1-D) and return it."""
-        y, self.zi = signal.sosfilt(self.sos, np.asarray(block, dtype=np.float64), zi=self.zi)
+        block = np.asarray(block, dtype=np.float64)
+        if self.zi is None:
+            if block.size == 0:
+                return block.copy()
+            self.zi = self._unit_state * float(block[0])
+        y, self.zi = signal.sosfilt(self.sos, block, zi=self.zi)
         return y
 
 

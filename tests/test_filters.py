@@ -265,13 +265,22 @@ def test_even_order_chebyshev1_keeps_mean_at_its_dc_gain():
     np.testing.assert_allclose(out, 10 ** (-2.0 / 20), rtol=1e-9)
 
 
-def test_causal_filter_equals_sosfilt_started_in_steady_state():
-    # scipy.signal reference: sosfilt with zi = sosfilt_zi * mean
+@pytest.mark.parametrize("band", ["lowpass", "highpass"])
+def test_causal_filter_equals_sosfilt_started_in_steady_state(band):
+    # scipy.signal reference: sosfilt with zi = sosfilt_zi * x[0], as in scipy's lfilter_zi documentation
     x = np.random.default_rng(1).normal(4.0, 1.0, 5000)
-    flt = Filter("elliptic", "lowpass", 5, 80.0)
+    flt = Filter("elliptic", band, 5, 80.0)
     sos = np.array(flt.sos(FS))
-    expected = signal.sosfilt(sos, x, zi=signal.sosfilt_zi(sos) * x.mean())[0]
+    expected = signal.sosfilt(sos, x, zi=signal.sosfilt_zi(sos) * x[0])[0]
     np.testing.assert_allclose(flt.apply(Channel(x, FS)).data, expected, rtol=1e-9, atol=1e-9)
+
+
+def test_causal_filter_passes_an_offset_without_a_start_up_step():
+    # analytic: a filter started in steady state for a constant input keeps a constant at its DC gain
+    x = np.full(3000, 250.0)
+    np.testing.assert_allclose(Filter(order=6, cutoff=40.0).apply(Channel(x, FS)).data, 250.0, rtol=1e-9)
+    np.testing.assert_allclose(Filter(band="highpass", order=6, cutoff=5.0).apply(Channel(x, FS)).data, 0.0,
+                               atol=1e-9 * 250.0)
 
 
 @pytest.mark.parametrize("band, padtype", [("highpass", "even"), ("bandpass", "even"), ("bandstop", "even"),
@@ -354,13 +363,23 @@ def test_block_causal_filtering_equals_whole_array(family, band):
     np.testing.assert_allclose(y, expected, rtol=1e-9, atol=1e-9 * np.abs(expected).max())
 
 
-def test_block_processor_started_at_mean_equals_apply():
-    # consistency with Filter.apply (itself checked against scipy.signal above)
+def test_block_processor_started_at_first_sample_equals_apply():
+    # consistency with Filter.apply (itself checked against scipy.signal above); empty blocks first are skipped
     x = np.random.default_rng(4).normal(7.0, 1.0, 20_000)
     flt = Filter(order=3, cutoff=40.0)
-    blocks = flt.block_processor(FS, level=x.mean())
+    blocks = flt.block_processor(FS, level=None)
+    y = np.concatenate([blocks.process(b) for b in [x[:0]] + np.array_split(x, 9)])
+    np.testing.assert_array_equal(y, flt.apply(Channel(x, FS)).data)
+
+
+def test_block_processor_started_at_a_level():
+    # scipy.signal reference: sosfilt with zi = sosfilt_zi * level
+    x = np.random.default_rng(5).normal(7.0, 1.0, 20_000)
+    flt = Filter(order=3, cutoff=40.0)
+    sos = np.array(flt.sos(FS))
+    blocks = flt.block_processor(FS, level=6.5)
     y = np.concatenate([blocks.process(b) for b in np.array_split(x, 9)])
-    np.testing.assert_allclose(y, flt.apply(Channel(x, FS)).data, rtol=1e-9)
+    np.testing.assert_allclose(y, signal.sosfilt(sos, x, zi=signal.sosfilt_zi(sos) * 6.5)[0], rtol=1e-9)
 
 
 @pytest.mark.parametrize("spec", [dict(band="highpass", cutoff=0.5), dict(family="elliptic", order=6, cutoff=100.0),
