@@ -81,7 +81,8 @@ from .errors import SigtuneError, SigtuneWarning
 from .steps import Chain, step_from_dict
 from .units import QUANTITIES, sensitivity_factor, unit_info
 
-__all__ = ["Session", "SessionResult", "apply_setup", "describe_source", "file_sha256", "resolve_source"]
+__all__ = ["Session", "SessionResult", "apply_setup", "describe_source", "file_sha256", "resolve_in_folder",
+           "resolve_source"]
 
 FORMAT_TAG = "sigtune-session"
 FORMAT_VERSION = 1
@@ -444,14 +445,49 @@ def _is_file(source: Mapping | None) -> bool:
     return bool(path) and not str(path).startswith(DEMO_SOURCE_PREFIX)
 
 
+def resolve_in_folder(path: str | os.PathLike, data_root: str | os.PathLike, where: str = "path") -> Path:
+    """Return ``path`` resolved, if it lies inside the folder ``data_root``.
+
+    A relative ``path`` is taken relative to ``data_root``. Every ``..`` and
+    symbolic link is followed (:meth:`pathlib.Path.resolve`), so neither
+    ``../``, an absolute path nor a link pointing out of the folder reaches
+    another file. Open the path returned, not the one given.
+
+    Raises
+    ------
+    SigtuneError
+        (located at ``where``) ``path`` leads outside ``data_root``, or cannot
+        be resolved (a loop of symbolic links).
+
+    Examples
+    --------
+    >>> root = Path("/no-such-folder/sigtune-data")  # need not exist
+    >>> str(resolve_in_folder("site_a/run_1.h5", root))
+    '/no-such-folder/sigtune-data/site_a/run_1.h5'
+    >>> resolve_in_folder("../elsewhere.h5", root, "recording")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    dsp.errors.SigtuneError: recording: '../elsewhere.h5' leads outside the data folder ...
+    """
+    given = os.fspath(path)
+    root = Path(data_root).resolve()
+    try:
+        resolved = (root / Path(given).expanduser()).resolve()  # an absolute `given` replaces `root`
+    except (OSError, RuntimeError) as err:  # RuntimeError: a loop of symbolic links (Python < 3.13)
+        raise SigtuneError(f"{given!r} cannot be resolved ({err}); give a file inside the data folder "
+                           f"{str(root)!r}", where) from None
+    if not resolved.is_relative_to(root):
+        raise SigtuneError(f"{given!r} leads outside the data folder {str(root)!r} (after following '..' and "
+                           f"symbolic links); only files inside it are opened. Put the file in the data "
+                           f"folder and give its path relative to that folder", where)
+    return resolved
+
+
 def resolve_source(session: "Session", data_root: str | os.PathLike) -> Path | None:
     """Return the session's source file, resolved, if it lies inside the folder ``data_root``.
 
-    The path (relative paths are taken relative to ``data_root``) is resolved
-    with every ``..`` and symbolic link followed (:meth:`pathlib.Path.resolve`),
-    so neither ``../``, an absolute path nor a link pointing out of the folder
-    reaches another file. Open the path returned, not the one in the session.
-    Returns None when the session names no file (none, or a built-in demo).
+    As :func:`resolve_in_folder` for ``source.path``. Returns None when the
+    session names no file (none, or a built-in demo).
 
     Raises
     ------
@@ -471,19 +507,8 @@ def resolve_source(session: "Session", data_root: str | os.PathLike) -> Path | N
     """
     if not _is_file(session.source):
         return None
-    given = session.source["path"]
-    root = Path(data_root).resolve()
     where = f"{session.location}: source.path" if session.location else "source.path"
-    try:
-        resolved = (root / given).resolve()  # an absolute `given` replaces `root`
-    except (OSError, RuntimeError) as err:  # RuntimeError: a loop of symbolic links (Python < 3.13)
-        raise SigtuneError(f"{given!r} cannot be resolved ({err}); give a recording inside the data folder "
-                           f"{str(root)!r}", where) from None
-    if not resolved.is_relative_to(root):
-        raise SigtuneError(f"{given!r} leads outside the data folder {str(root)!r} (after following '..' and "
-                           f"symbolic links); only recordings inside it are opened. Put the recording in the "
-                           f"data folder and give its path relative to the session file", where)
-    return resolved
+    return resolve_in_folder(session.source["path"], data_root, where)
 
 
 def file_sha256(path: str | os.PathLike, block_bytes: int = 1 << 22) -> str:

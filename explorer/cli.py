@@ -66,7 +66,7 @@ def _cmd_serve(args) -> int:
     from explorer.serve import serve
 
     return serve(file=args.file, session=args.session, port=args.port, address=args.address,
-                 show=args.show)
+                 show=args.show, data_root=args.data_root)
 
 
 def _cmd_batch(args) -> int:
@@ -100,6 +100,9 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--port", type=int, default=5006)
     serve.add_argument("--address", default="127.0.0.1",
                        help="interface to bind (default 127.0.0.1: this machine only)")
+    serve.add_argument("--data-root", type=Path,
+                       help="the only folder whose files the page may open or save to, by typed path or through "
+                            "an uploaded session (default: the current folder)")
     serve.add_argument("--show", action="store_true", help="open a browser tab")
     serve.set_defaults(run=_cmd_serve)
 

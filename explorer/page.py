@@ -79,11 +79,16 @@ class ExplorerPage:
         its event loop. None (a script, a test, a notebook) runs synchronously.
     upload_dir : Path, optional
         Private folder for this session's uploads (removed when it closes).
+    data_root : Path, optional
+        The data folder: paths typed on the page, and the recording a loaded
+        session names, must lie inside it (see :mod:`explorer.exports`).
+        None (a notebook): paths are taken as given.
     """
 
-    def __init__(self, state: BenchState, doc=None, upload_dir=None):
+    def __init__(self, state: BenchState, doc=None, upload_dir=None, data_root=None):
         self.state = state
         self.upload_dir = upload_dir
+        self.data_root = data_root
         self.binder = Binder(state)
         self.time_plot = TracePlot(("raw", "processed"), "signal", "Signal", "Raw and processed",
                                    method=state.decimation)
@@ -367,9 +372,11 @@ class ExplorerPage:
         self.upload.param.watch(self._uploaded, "value")
         self.channel_select = pn.widgets.Select(label="Channel", options=list(s.param.channel.objects))
         b.bind("channel", self.channel_select, "source")
+        folder = ("" if self.data_root is None else
+                  f' Paths are inside the data folder <code>{html.escape(str(self.data_root))}</code>.')
         settings = [
             pn.pane.HTML('<p class="st-note">Open a recording by path (fast: read on the server) or upload a '
-                         f'small one (up to {exports.MAX_UPLOAD_MB} MB).</p>'),
+                         f'small one (up to {exports.MAX_UPLOAD_MB} MB).{folder}</p>'),
             self.path_input, pn.Row(open_button, demo_button), self.upload, b.message("source").pane,
             self.channel_select,
             b.bind("unit", pn.widgets.Select(label="Unit of the samples", options=list(s.param.unit.objects)),
@@ -568,9 +575,18 @@ class ExplorerPage:
         self.cutoff_slider.param.update(end=nyquist, step=nyquist / 1000, value=min(self.state.cutoff, nyquist))
 
     def open_path(self, path: str) -> str | None:
-        """Open a recording by path (empty: the demo); return the message shown, if any."""
+        """Open a recording by typed path (empty: the demo); return the message shown, if any."""
+        path = path.strip()
         try:
-            self.state.open(path.strip())
+            path = str(exports.typed_path(path, self.data_root, "recording")) if path else ""
+        except SigtuneError as err:
+            self.binder.message("source").show(str(err))
+            return str(err)
+        return self._open_file(path)
+
+    def _open_file(self, path: str) -> str | None:
+        try:
+            self.state.open(path)
         except (SigtuneError, OSError) as err:
             text = str(err)
         else:
@@ -588,7 +604,7 @@ class ExplorerPage:
         except SigtuneError as err:
             self.binder.message("source").show(str(err))
             return
-        self.open_path(str(path))
+        self._open_file(str(path))  # the private upload folder, outside the data folder
 
     def _session_bytes(self):
         try:
@@ -598,9 +614,9 @@ class ExplorerPage:
             return io.BytesIO(b"")
 
     def save_session(self, path: str) -> str | None:
-        """Save the session to ``path`` (relative to the folder the app was started in); return any error."""
+        """Save the session to ``path`` (relative to the data folder); return any error."""
         try:
-            saved = exports.save_session(self.state, path)
+            saved = exports.save_session(self.state, path, self.data_root)
         except (SigtuneError, OSError) as err:
             self.binder.message("export").show(str(err))
             return str(err)
@@ -609,22 +625,21 @@ class ExplorerPage:
         return None
 
     def load_session_path(self, path: str) -> str | None:
-        """Load a session file by path; return the message, if any."""
+        """Load a session file by path (relative to the data folder); return the message, if any."""
         try:
-            exports.load_session_file(self.state, path)
+            return exports.load_session_file(self.state, path, self.data_root)
         except (SigtuneError, OSError) as err:
             return str(err)
-        return None
 
     def _session_uploaded(self, event) -> None:
         if not event.new:
             return
         try:
-            exports.load_session_bytes(self.state, event.new, self.session_upload.filename or "upload")
+            note = exports.load_session_bytes(self.state, event.new, self.session_upload.filename or "upload",
+                                              self.data_root)
         except SigtuneError as err:
-            self.binder.message("export").show(str(err))
-            return
-        self.binder.message("export").show(None)
+            note = str(err)
+        self.binder.message("export").show(note)
 
     def _channel_file(self):
         try:

@@ -311,14 +311,18 @@ class BenchState(param.Parameterized):
         return Session(source=source, setup=setups, chain=self.chain, analysis=analysis_settings(self.snapshot()),
                        view=view, notes=self.notes)
 
-    def load_session(self, session, *, open_source: bool = True) -> None:
+    def load_session(self, session, *, open_source: bool = True, data_root=None) -> str | None:
         """Restore the settings of a :class:`dsp.Session` (a validated one: ``Session.load``).
 
         With ``open_source`` the session's recording is opened when it exists
         on this computer; otherwise (or if it does not) the settings are
         applied to the channel open now: that is how a session is applied to
-        another recording. Raises SigtuneError naming the field that cannot
-        be applied; the current settings then stay as they were.
+        another recording. With ``data_root`` (the folder a server lets its
+        users read) a source path leading outside that folder is not opened
+        (:func:`dsp.session.resolve_source`). Returns a note saying why the
+        session's recording was not opened, or None. Raises SigtuneError
+        naming the field that cannot be applied; the current settings then
+        stay as they were.
         """
         source = dict(session.source or {})
         changes = settings_from_chain(session.chain)
@@ -327,8 +331,7 @@ class BenchState(param.Parameterized):
         setups = {str(k): dict(v) for k, v in (session.setup or {}).items()}
         channels = list(source.get("channels") or [])
         path = str(source.get("path") or "")
-        if open_source and path:
-            self._open_session_source(path, channels)
+        note = self._open_session_source(session, data_root) if open_source and path else None
         self._setups = setups
         wanted = next((c for c in channels if c in self.param.channel.objects), None)
         with param.parameterized.batch_call_watchers(self):
@@ -338,16 +341,25 @@ class BenchState(param.Parameterized):
             defaults = {k: _ABSENT_STEP.get(k, self.param[k].default) for k in _CHAIN_SETTINGS
                         if k not in changes}
             self.param.update(**defaults, **changes, notes=str(session.notes or ""))
+        return note
 
-    def _open_session_source(self, path: str, channels: list[str]) -> None:
+    def _open_session_source(self, session, data_root) -> str | None:
+        """Open the session's recording; return why it was not opened (the settings then apply to the open data)."""
+        from dsp.session import resolve_source
+
+        path = str(session.source["path"])
         if path.startswith(DEMO_PREFIX):
             self.demo_scenario = path[len(DEMO_PREFIX):]
             self.open("", channel=None)
-            return
+            return None
+        instead = "the settings apply to the recording open now"
         try:
+            if data_root is not None:
+                path = str(resolve_source(session, data_root))
             self.open(path)
-        except SigtuneError:
-            return  # not on this computer: apply the settings to the open data
+        except SigtuneError as err:  # outside the data folder, not on this computer, or unreadable
+            return f"the session's recording was not opened ({err}); {instead}"
+        return None
 
 
 _FILTER_SETTINGS = {"filter_band", "filter_family", "filter_order", "cutoff", "cutoff_high", "ripple_db",

@@ -93,6 +93,24 @@ def test_cli_default_address_is_loopback():
     assert args.address == "127.0.0.1"
 
 
+def test_served_pages_keep_to_the_data_folder(tmp_path):
+    """Every page of a server has its data folder (the working folder unless told otherwise)."""
+    port = free_port()
+    thread = start_server(port=port, data_root=tmp_path)
+    client = None
+    try:
+        wait_until(lambda: fetch(f"http://127.0.0.1:{port}/"), timeout_s=60, what="server answering")
+        client = Client(f"http://127.0.0.1:{port}/")
+        page = client.page
+        assert page.data_root == tmp_path.resolve()
+        text = page.open_path("../elsewhere.csv")
+        assert text.startswith("recording: ") and "leads outside the data folder" in text
+    finally:
+        if client is not None:
+            client.close()
+        _stop(thread)
+
+
 # ---- uploads ----
 def test_oversize_upload_is_refused_with_a_clear_message_and_nothing_written(tmp_path):
     data = b"\0" * (exports.MAX_UPLOAD_MB * 2**20 + 1)
