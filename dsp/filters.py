@@ -112,6 +112,10 @@ class FilterDesign:
         ``filter.cutoff`` only with ``cutoff_mode="effective"``.
     report : mapping
         Read-only summary (see :meth:`Filter.design`); ``to_dict()`` gives a plain copy.
+    steady_state : ndarray, shape (n_sections, 2)
+        The section states in steady state for a constant input of 1
+        (:func:`scipy.signal.sosfilt_zi`), read-only; scaled by the first
+        sample, they start a causal pass without a start-up step.
     """
 
     sos: np.ndarray
@@ -119,6 +123,7 @@ class FilterDesign:
     filter: "Filter"
     design_cutoff: float | tuple[float, float]
     report: types.MappingProxyType = field(repr=False)
+    steady_state: np.ndarray = field(repr=False)
 
     @property
     def settling_samples(self) -> int:
@@ -279,8 +284,10 @@ def _design_cached(spec: "Filter", fs: float) -> FilterDesign:
         "dc_gain": dc_gain ** passes,
         "fs": fs,
     }
+    steady_state = signal.sosfilt_zi(sos)
+    steady_state.flags.writeable = False
     return FilterDesign(sos=sos, fs=fs, filter=spec, design_cutoff=design_cutoff,
-                        report=types.MappingProxyType(report))
+                        report=types.MappingProxyType(report), steady_state=steady_state)
 
 
 @register_step
@@ -516,7 +523,8 @@ class Filter(Step):
         if self.zero_phase:
             raise SigtuneError("zero-phase filtering needs the whole record (it runs backwards from the end); "
                                "set zero_phase=False for block processing", "zero_phase")
-        return CausalBlockFilter(self.sos(fs), level)
+        design = self.design(fs)
+        return CausalBlockFilter(design.sos, level, steady_state=design.steady_state)
 
     def zero_phase_blocks(self, fs: float, read, n_samples: int, block_samples: int = 2 ** 22,
                           overlap_settling: int = 4, mean: float | None = None):
@@ -593,7 +601,7 @@ class Filter(Step):
             if self.band in ("lowpass", "bandstop"):  # DC passes: put the mean back at the DC gain
                 y += design.report["dc_gain"] * mean
         else:
-            y = CausalBlockFilter(sos, level=None).process(x)
+            y = CausalBlockFilter(sos, level=None, steady_state=design.steady_state).process(x)
         info = {"edge_zones_s": self._edge_zones(channel, settle),
                 "settling_time_s": design.report["settling_time_s"],
                 "design_cutoff_hz": list(design.report["design_cutoff_hz"]),
@@ -665,11 +673,12 @@ class CausalBlockFilter:
     filtered block (float64); the state ``zi`` carries over to the next call.
     ``level`` is the constant input the filter starts in steady state for;
     ``None`` takes the first sample of the first non-empty block.
+    ``steady_state`` is ``sosfilt_zi(sos)``, if already known (a design's).
     """
 
-    def __init__(self, sos: np.ndarray, level: float | None = 0.0):
+    def __init__(self, sos: np.ndarray, level: float | None = 0.0, steady_state: np.ndarray | None = None):
         self.sos = np.array(sos)  # a writable copy: scipy's sosfilt needs one
-        self._unit_state = signal.sosfilt_zi(self.sos)
+        self._unit_state = signal.sosfilt_zi(self.sos) if steady_state is None else steady_state
         self.zi = None if level is None else self._unit_state * check_number(level, "level")
 
     def process(self, block) -> np.ndarray:
