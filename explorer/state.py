@@ -357,7 +357,7 @@ class BenchState(param.Parameterized):
             if data_root is not None:
                 path = str(resolve_source(session, data_root))
             self.open(path)
-        except SigtuneError as err:  # outside the data folder, not on this computer, or unreadable
+        except (SigtuneError, OSError) as err:  # outside the data folder, not on this computer, unreadable
             return f"the session's recording was not opened ({err}); {instead}"
         return None
 

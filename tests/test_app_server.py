@@ -1,37 +1,15 @@
 """Tier 2: serve the explorer on an ephemeral 127.0.0.1 port, fetch the page, stop the server."""
 
 import re
-import time
-import urllib.error
-import urllib.request
 
 import panel as pn
 import pytest
 
 from dsp import SigtuneError
 from explorer.serve import _origins, free_port, start_server
+from polling import fetch, wait_until
 
 pytestmark = pytest.mark.server
-
-
-def wait_until(condition, timeout_s=30.0, interval_s=0.1):
-    """Poll ``condition()`` until it returns a true value (returned) or the time runs out."""
-    deadline = time.monotonic() + timeout_s
-    while True:
-        value = condition()
-        if value:
-            return value
-        if time.monotonic() > deadline:
-            raise TimeoutError(f"condition not met within {timeout_s} s")
-        time.sleep(interval_s)
-
-
-def _fetch(url):
-    try:
-        with urllib.request.urlopen(url, timeout=5) as response:
-            return response.status, response.read().decode("utf-8", "replace")
-    except (urllib.error.URLError, ConnectionError):
-        return None
 
 
 @pytest.fixture
@@ -46,14 +24,15 @@ def server():
 
 
 def test_page_is_served_on_loopback_with_its_own_resources(server):
-    status, page = wait_until(lambda: _fetch(f"http://127.0.0.1:{server}/"))
+    status, body = wait_until(lambda: fetch(f"http://127.0.0.1:{server}/"))
+    page = body.decode("utf-8", "replace")
     assert status == 200
     assert "<title>sigtune explorer</title>" in page
     sources = re.findall(r'(?:src|href)="([^"]+)"', page)
     assert sources, "the page loads scripts"
     foreign = [s for s in sources if re.match(r"(https?:)?//", s) and not re.match(r"(https?:)?//(127\.0\.0\.1|localhost)", s)]
     assert foreign == []  # every script and style sheet comes from this server
-    status, script = _fetch(f"http://127.0.0.1:{server}/" + next(s for s in sources if s.endswith(".js") or ".js?" in s).lstrip("/"))
+    status, script = fetch(f"http://127.0.0.1:{server}/" + next(s for s in sources if s.endswith(".js") or ".js?" in s).lstrip("/"))
     assert status == 200 and len(script) > 1000
 
 

@@ -19,7 +19,8 @@ import pytest
 from dsp import SigtuneError
 from explorer import exports, serve
 from explorer.serve import create_app, free_port, start_server
-from test_soak import Client, fetch, wait_until
+from polling import fetch, wait_until
+from test_soak import Client
 
 pytestmark = pytest.mark.server
 

@@ -19,13 +19,13 @@ import os
 import statistics
 import threading
 import time
-import urllib.request
 
 import panel as pn
 import psutil
 import pytest
 
 from explorer.serve import _LIVE_PAGES, free_port, start_server
+from polling import fetch, wait_until
 
 pytestmark = pytest.mark.server
 
@@ -37,27 +37,6 @@ UPDATE_TIMEOUT_S = 60.0  # one update slower than this counts as an error (2 cor
 def cutoff_for(step: int, index: int) -> float:
     """A high-pass edge in 5-95 Hz never used before in the run: each change recomputes (no cache hit)."""
     return 5.0 + ((step * SESSIONS + index) % 9000) * 0.01
-
-
-def wait_until(condition, timeout_s=30.0, interval_s=0.05, what="condition"):
-    """Poll ``condition()`` until it returns a true value (returned), or fail after ``timeout_s``."""
-    deadline = time.monotonic() + timeout_s
-    while True:
-        value = condition()
-        if value:
-            return value
-        if time.monotonic() > deadline:
-            raise AssertionError(f"{what} not met within {timeout_s} s")
-        time.sleep(interval_s)
-
-
-def fetch(url: str):
-    """(status, body) of a GET, or None when the server does not answer."""
-    try:
-        with urllib.request.urlopen(url, timeout=10) as response:
-            return response.status, response.read()
-    except OSError:
-        return None
 
 
 class Client:

@@ -1,12 +1,12 @@
 """Tier 3 fixtures: the explorer served on 127.0.0.1 and driven by Debian's Chromium through Playwright."""
 
 import os
-import time
 from pathlib import Path
 from urllib.parse import urlparse
 
 import panel as pn
 import pytest
+from polling import wait_until
 
 CHROMIUM = Path("/usr/bin/chromium")
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
@@ -20,18 +20,6 @@ def _own(url: str) -> bool:
     if url.startswith("data:"):
         return True
     return urlparse(url[len("blob:"):] if url.startswith("blob:") else url).hostname in OWN_HOSTS
-
-
-def wait_until(condition, timeout_s=30.0, interval_s=0.1, what="condition"):
-    """Poll ``condition()`` until it returns a true value (returned), or fail after ``timeout_s``."""
-    deadline = time.monotonic() + timeout_s
-    while True:
-        value = condition()
-        if value:
-            return value
-        if time.monotonic() > deadline:
-            raise AssertionError(f"{what} not met within {timeout_s} s")
-        time.sleep(interval_s)
 
 
 def _require_browser():
