@@ -47,7 +47,11 @@ Cluster
     By default a local cluster of ``workers`` processes with one thread each,
     bound to 127.0.0.1 with no dashboard. With ``scheduler`` an existing
     cluster is used; its workers must have sigtune installed and see the
-    input and output paths (a shared file system).
+    input and output paths (a shared file system). A local cluster's start,
+    and each new worker's import of sigtune (mostly scipy.signal), cost a
+    few seconds per run whatever its size; a cluster kept running, its
+    workers started with ``--preload dsp.campaign``, pays them once
+    (``bench/results/campaign.md``).
 Worker settings
     Dask's nanny sets ``MALLOC_TRIM_THRESHOLD_=65536`` in each worker, which
     turns off glibc's adaptive allocation threshold, so every large numpy
