@@ -31,7 +31,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from dsp._atomic import write_text_atomic  # noqa: E402
 from dsp.channel import Channel  # noqa: E402
 from dsp.filters import Filter  # noqa: E402
-from dsp.resample import Resample  # noqa: E402
+from dsp.resampling import Resample  # noqa: E402
 
 FS = 5120.0
 FS_OUT = 2000.0  # 25/64: a rational factor, one polyphase stage

@@ -15,8 +15,8 @@ Steps (each is data: ``to_dict()`` / ``step_from_dict``; ``apply(channel)``)
     Gain, Calibrate, ConvertUnit, Detrend, Crop
     Filter (design report, responses, edge_zones), Resample, Integrate, Differentiate, Weighting
 Conditioning and aliasing
-    alias_frequency, alias_table, oversampling_ratio, alias_risk, sinc_interpolate, resample_plan
-    (the function ``resample(channel, fs_out)`` lives in ``dsp.resample``)
+    resample, resample_plan, alias_frequency, alias_table, oversampling_ratio, alias_risk,
+    sinc_interpolate
 Spectra and bands
     psd, asd, linear_spectrum, spectrogram, find_peaks, window_properties
     band_levels, band_rms, iec_bands   (IEC 61260-1 octave and one-third-octave bands)
@@ -33,12 +33,11 @@ Errors
 """
 
 from . import advice, analysis, bands, blocks, campaign, conditioning, demo, evaluation, filters, io, motion
-from . import quality, resample, session, severity, spectra, steps, units, weighting, windows
+from . import quality, resampling, session, severity, spectra, steps, units, weighting, windows
 
-# Captured before the star imports below, which rebind some names (``resample`` the function
-# shadows ``resample`` the module inside this namespace).
+# The modules whose ``__all__`` make up the public face (captured before the star imports below).
 _PUBLIC_MODULES = (advice, analysis, bands, blocks, campaign, conditioning, demo, evaluation, filters, io, motion,
-                   quality, resample, session, severity, spectra, steps, units, weighting, windows)
+                   quality, resampling, session, severity, spectra, steps, units, weighting, windows)
 
 from ._version import __version__  # noqa: E402
 from .advice import *  # noqa: E402,F403
@@ -55,7 +54,7 @@ from .filters import *  # noqa: E402,F403
 from .io import *  # noqa: E402,F403
 from .motion import *  # noqa: E402,F403
 from .quality import *  # noqa: E402,F403
-from .resample import *  # noqa: E402,F403
+from .resampling import *  # noqa: E402,F403
 from .session import *  # noqa: E402,F403
 from .severity import *  # noqa: E402,F403
 from .spectra import *  # noqa: E402,F403

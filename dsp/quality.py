@@ -49,7 +49,7 @@ Amplitude distribution
     Records above 10^6 samples use every k-th sample (at most 10^6) for
     ``D``. Skewness and kurtosis are reported with it.
 Alias risk
-    ``dsp.resample.alias_risk`` on the longest valid segment, when that
+    ``dsp.alias_risk`` on the longest valid segment, when that
     function is available; its level ``"elevated"`` is an info finding,
     ``"high"`` a warning.
 Gap and NaN policy
@@ -772,7 +772,7 @@ def _json_ready(value):
 def _alias_indicator(channel: Channel):
     """The resample module's alias-risk indicator, imported here so this module loads without it."""
     try:
-        from .resample import alias_risk
+        from .resampling import alias_risk
     except ImportError:
         return None
     try:

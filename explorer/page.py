@@ -235,8 +235,8 @@ class ExplorerPage:
             return
         self._shown["alias"] = key
         try:
-            seen_in = dsp.resample.alias_frequency(f, fs_in) if f else None
-            seen_out = dsp.resample.alias_frequency(f, fs_out) if f else None
+            seen_in = dsp.alias_frequency(f, fs_in) if f else None
+            seen_out = dsp.alias_frequency(f, fs_out) if f else None
         except SigtuneError as err:
             self.binder.message("resample").show(str(err))
             return

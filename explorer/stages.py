@@ -174,7 +174,7 @@ def resample_step(snap: Mapping[str, Any]):
     """The resampling step the settings describe, or None (may raise SigtuneError)."""
     if snap["resample_by"] == "none":
         return None
-    from dsp.resample import Resample
+    from dsp.resampling import Resample
 
     if snap["resample_by"] == "rate":
         return Resample(fs_out=snap["resample_fs"])

@@ -82,7 +82,7 @@ def test_no_steps_returns_the_input(long_channel):
 
 def test_the_plan_says_which_steps_need_the_whole_record():
     from dsp.motion import Integrate
-    from dsp.resample import Resample
+    from dsp.resampling import Resample
 
     assert [needs_whole_record(s) for s in (Gain(2.0), Calibrate(1.0), ConvertUnit("g"), Crop(0.0, 1.0),
                                             Filter(cutoff=5.0))] == [False] * 5

@@ -12,7 +12,7 @@ from scipy import signal
 
 from dsp import (Chain, Channel, Resample, SigtuneError, SigtuneWarning, alias_frequency, alias_risk, alias_table,
                  edge_zones, oversampling_ratio, resample_plan, sinc_interpolate, step_from_dict)
-from dsp.resample import resample
+from dsp import resample
 
 
 def tone(fs, f, seconds, amplitude=1.0, offset=0.0, phase=0.3):

@@ -45,10 +45,7 @@ from .channel import Channel
 from .errors import SigtuneError, SigtuneWarning
 from .steps import Step, register_step
 
-# ``resample`` (the function) is public but left out of ``__all__``: dsp/__init__.py star-imports each
-# module and then reads ``<module>.__all__`` by module name, which the function of the same name would shadow.
-# ``from dsp.resample import resample`` works; dsp/__init__.py should bind ``dsp.resample`` to it (lead's file).
-__all__ = ["Resample", "resample_plan", "sinc_interpolate", "alias_frequency", "alias_table",
+__all__ = ["Resample", "resample", "resample_plan", "sinc_interpolate", "alias_frequency", "alias_table",
            "oversampling_ratio", "alias_risk", "COMMON_OVERSAMPLING_RATIO"]
 
 #: Sample rate / usable bandwidth commonly used by vibration analysers (common practice).
