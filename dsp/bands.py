@@ -32,6 +32,7 @@ from typing import Any
 import numpy as np
 from scipy import signal
 
+from ._json import json_ready
 from ._validate import check_choice, check_int, check_number
 from .channel import Channel
 from .errors import SigtuneError
@@ -110,7 +111,7 @@ class BandLevels:
                 "unit": self.unit, "fraction": self.fraction, "nominal": list(self.nominal),
                 "frequencies_hz": self.frequencies.tolist(), "lower_edges_hz": self.lower_edges.tolist(),
                 "upper_edges_hz": self.upper_edges.tolist(), "values": self.values.tolist(),
-                "total_rms": self.total_rms, "settings": _jsonable(self.settings),
+                "total_rms": self.total_rms, "settings": json_ready(self.settings),
                 "notes": list(self.notes)}
 
 
@@ -450,5 +451,5 @@ def band_rms(channel: Channel, f_low: float, f_high: float, window="hann",
 # end; importing it last lets either module be imported first without a cycle error.
 from .spectra import (  # noqa: E402
     _DEFAULT_SEGMENT_S, _MIN_DEFAULT_NPERSEG, DETRENDS, _band_integrals, _default_nperseg,
-    _frozen_array, _jsonable, _need_channel, _usable_samples, psd,
+    _frozen_array, _need_channel, _usable_samples, psd,
 )

@@ -11,7 +11,8 @@ Hand-arm vibration (ISO 5349-1:2001; Directive 2002/44/EC)
     A(8); :func:`daily_exposure` combines several tasks or exposures.
 Machinery severity and building vibration
     :func:`severity_zone`, :func:`machine_severity` and :func:`building_ppv`
-    live in :mod:`dsp.severity` and are re-exported here.
+    live in :mod:`dsp.severity` and are re-exported here; the cautions and
+    clause references shared by all of them in :mod:`dsp.guidance`.
 
 Every result has ``clause`` (what it follows), ``caution`` (plain language,
 from :data:`CAUTIONS`, the one place the app takes its text from) and
@@ -22,63 +23,31 @@ are marked ``# from memory`` and listed in ``docs/evaluation.md``.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
+from ._json import json_ready
 from ._validate import check_choice, check_number
 from .channel import Channel
 from .errors import SigtuneError
+from .guidance import CAUTIONS, CLAUSES, _by_axis, _longest_clean_span, _Result
+from .severity import (BUILDING_CLASSES, BUILDING_GUIDELINES, SEVERITY_ZONES, BuildingResult,
+                       MachineSeverityResult, building_ppv, guideline_velocity, machine_severity,
+                       severity_zone)
 from .units import conversion_factor
 from .weighting import Weighting
 
+# CAUTIONS, CLAUSES (dsp.guidance) and the machinery and building evaluations (dsp.severity) are
+# re-exported here: this module is the entry point for every evaluation.
 __all__ = ["CAUTIONS", "CLAUSES", "HEALTH_FACTORS", "COMFORT_FACTORS", "EXPOSURE_VALUES",
            "HEALTH_CAUTION_ZONE", "COMFORT_REACTIONS", "AxisFigures", "WholeBodyResult", "HandArmResult",
            "DailyExposureResult", "whole_body", "hand_arm", "daily_exposure", "combined_vdv",
-           "running_rms", "vibration_dose_value"]
-
-# ---- cautions: the one place the app, reports and results take their text from ----
-_COMMON_CAUTION = (
-    "These figures depend on correct sensor mounting, axes and exposure times. Zone boundaries and "
-    "exposure values are guidance: the governing standard, local regulations, contracts and the "
-    "manufacturer override them. Decisions about people's health or machine safety belong to "
-    "competent professionals.")
-
-CAUTIONS: dict[str, str] = {
-    "whole_body": _COMMON_CAUTION + (
-        " Whole-body figures assume the accelerometer at the interface between the body and the seat, "
-        "floor or backrest, aligned with the body's axes; daily values scale with the exposure time "
-        "you gave, so a wrong time gives a wrong A(8)."),
-    "hand_arm": _COMMON_CAUTION + (
-        " Hand-arm figures assume the accelerometer on the handle where the hand grips it, firmly "
-        "fixed (a loose or resonant mount reads high), with all three axes measured; the daily value "
-        "scales with the trigger time you gave."),
-    "daily_exposure": _COMMON_CAUTION + (
-        " A daily exposure is only as good as the durations given for each task: use measured trigger "
-        "or operating time, not shift length."),
-    "machine_severity": _COMMON_CAUTION + (
-        " Severity zones apply to the machine group and support you chose, measured on bearing "
-        "housings or pedestals in steady operation; a machine can be in zone A and still have a "
-        "developing fault, and alarm and trip values from a baseline need a representative baseline."),
-    "building_ppv": _COMMON_CAUTION + (
-        " Guideline values apply to short-term vibration (not resonant or fatiguing long-term "
-        "vibration) at the foundation or top floor of the building class you chose; staying below "
-        "them means damage reducing serviceability is not expected, exceeding them does not "
-        "necessarily mean damage."),
-}
-
-CLAUSES: dict[str, str] = {
-    "whole_body": "ISO 2631-1:1997 clauses 6.2-6.5, 7.2, 8.2, Annex B (health), Annex C (comfort); "
-                  "Directive 2002/44/EC Art. 3(2), Annex B",
-    "hand_arm": "ISO 5349-1:2001 clauses 4-5 (vibration total value, daily exposure A(8)), Annex A (Wh); "
-                "Directive 2002/44/EC Art. 3(1), Annex A",
-    "daily_exposure": "ISO 5349-1:2001 clause 5; ISO 2631-1:1997 Annex B eq. B.1; Directive 2002/44/EC "
-                      "Annex A.1 and B.1",
-    "machine_severity": "ISO 10816-3:2009 (ISO 20816-3:2022) clause 6, Annex A Tables A.1 and A.2",
-    "building_ppv": "DIN 4150-3:2016 Table 1 (short-term vibration, guideline values)",
-}
+           "running_rms", "vibration_dose_value",
+           "BUILDING_CLASSES", "BUILDING_GUIDELINES", "SEVERITY_ZONES", "BuildingResult", "MachineSeverityResult",
+           "building_ppv", "guideline_velocity", "machine_severity", "severity_zone"]
 
 # ---- tables ----
 #: Weighting and multiplying factor k per axis for health (ISO 2631-1:1997 clause 7.2.3; seated only).
@@ -124,32 +93,6 @@ _MTVV_RATIO_LIMIT = 1.5  # ISO 2631-1:1997 clause 6.3.3, eq. (9)
 _VDV_RATIO_LIMIT = 1.75  # ISO 2631-1:1997 clause 6.3.3, eq. (10)
 _EVDV_FACTOR = 1.4  # eVDV = 1.4 a_w T^(1/4), ISO 2631-1:1997 clause 6.3.3 note / Annex B.3.1; from memory
 _T0_H = 8.0  # reference day, Directive 2002/44/EC Annex A.1, B.1; ISO 5349-1 clause 5
-
-
-def _jsonable(value):
-    if isinstance(value, Mapping):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
-
-
-class _Result:
-    """Mixin: ``to_dict()`` of a result dataclass, JSON-ready, figures plus clause and caution."""
-
-    def to_dict(self) -> dict[str, Any]:
-        """Return the figures, ``clause``, ``caution`` and ``notes`` as JSON-ready data."""
-        data = {}
-        for name in self.__dataclass_fields__:
-            value = getattr(self, name)
-            data[name] = value.to_dict() if hasattr(value, "to_dict") else _jsonable(
-                {k: v.to_dict() if hasattr(v, "to_dict") else v for k, v in value.items()}
-                if isinstance(value, Mapping) else value)
-        return data
 
 
 # ---- metrics on a weighted record ----
@@ -232,24 +175,8 @@ class AxisFigures(_Result):
         return self.vdv / (self.a_w * self.duration_s ** 0.25) if self.a_w > 0 else math.nan
 
     def to_dict(self) -> dict[str, Any]:
-        return _jsonable({**{n: getattr(self, n) for n in self.__dataclass_fields__},
-                          "mtvv_ratio": self.mtvv_ratio, "vdv_ratio": self.vdv_ratio})
-
-
-def _longest_clean_span(channel: Channel) -> tuple[int, int]:
-    """Longest run of samples outside every edge zone in the channel's history."""
-    blocked = []
-    for entry in channel.history:
-        for t0, t1 in (entry.get("info") or {}).get("edge_zones_s") or ():
-            i0 = math.floor((min(t0, t1) - channel.start_time) * channel.fs + 1e-9)
-            i1 = math.ceil((max(t0, t1) - channel.start_time) * channel.fs - 1e-9)
-            blocked.append((max(0, i0), min(channel.n_samples, i1)))
-    best, cursor = (0, 0), 0
-    for i0, i1 in sorted(blocked) + [(channel.n_samples, channel.n_samples)]:
-        if i0 - cursor > best[1] - best[0]:
-            best = (cursor, i0)
-        cursor = max(cursor, i1)
-    return best
+        return json_ready({**{n: getattr(self, n) for n in self.__dataclass_fields__},
+                           "mtvv_ratio": self.mtvv_ratio, "vdv_ratio": self.vdv_ratio}, nonfinite_as_none=True)
 
 
 def _weighted(channel: Channel, weighting: str, where: str) -> Channel:
@@ -288,34 +215,6 @@ def _axis_figures(channel: Channel, axis: str, weighting: str, k: float, where: 
                        crest_factor=peak / a_w if a_w > 0 else math.nan,
                        mtvv=float(np.max(running_rms(x, fs))), vdv=vibration_dose_value(x, fs),
                        duration_s=x.size / fs, excluded_s=(weighted.n_samples - x.size) / fs)
-
-
-def _by_axis(channels, axis: str | None, keys: Sequence[str], where: str) -> dict[str, Channel]:
-    """Accept {axis: Channel}, a sequence of channels with metadata 'axis', or one channel."""
-    if isinstance(channels, Channel):
-        channels = [channels.replace(metadata={**channels.metadata, "axis": axis})] if axis else [channels]
-    elif axis is not None:
-        raise SigtuneError("'axis' is only for a single channel; give a dict {axis: channel} otherwise", where)
-    if isinstance(channels, Mapping):
-        items = {str(k).lower(): ch for k, ch in channels.items()}
-    else:
-        items = {}
-        for ch in channels:
-            name = str(ch.metadata.get("axis", "")).lower() if isinstance(ch, Channel) else ""
-            if not name:
-                raise SigtuneError(f"channel {getattr(ch, 'name', ch)!r} has no axis: give a dict "
-                                   f"{{axis: channel}}, set metadata['axis'] or pass axis=...; "
-                                   f"valid axes: {', '.join(keys)}", where)
-            if name in items:
-                raise SigtuneError(f"two channels for axis {name!r}", where)
-            items[name] = ch
-    if not items:
-        raise SigtuneError(f"needs at least one channel; valid axes: {', '.join(keys)}", where)
-    for name, ch in items.items():
-        check_choice(name, f"{where} axis", keys)
-        if not isinstance(ch, Channel):
-            raise SigtuneError(f"axis {name!r}: expected a Channel, got {type(ch).__name__}", where)
-    return items
 
 
 def _level(value: float, action: float, limit: float) -> str:
@@ -639,11 +538,3 @@ def combined_vdv(values) -> float:
     """
     vdvs = [check_number(v, f"values[{i}]", low=0, unit="m/s^1.75") for i, v in enumerate(values)]
     return sum(v ** 4 for v in vdvs) ** 0.25
-
-
-from .severity import (BUILDING_CLASSES, BUILDING_GUIDELINES, SEVERITY_ZONES, BuildingResult,  # noqa: E402
-                       MachineSeverityResult, building_ppv, guideline_velocity, machine_severity,
-                       severity_zone)
-
-__all__ += ["BUILDING_CLASSES", "BUILDING_GUIDELINES", "SEVERITY_ZONES", "BuildingResult",
-            "MachineSeverityResult", "building_ppv", "guideline_velocity", "machine_severity", "severity_zone"]

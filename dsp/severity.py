@@ -36,7 +36,8 @@ from scipy import fft, signal
 from ._validate import check_choice, check_number
 from .channel import Channel
 from .errors import SigtuneError
-from .evaluation import CAUTIONS, CLAUSES, _by_axis, _jsonable, _longest_clean_span, _Result
+from ._json import json_ready
+from .guidance import CAUTIONS, CLAUSES, _by_axis, _longest_clean_span, _Result
 from .units import conversion_factor
 
 __all__ = ["SEVERITY_ZONES", "MACHINE_GROUPS", "ZONE_MEANINGS", "BUILDING_CLASSES", "BUILDING_GUIDELINES",
@@ -379,9 +380,9 @@ def _axis_ppv(velocity, channel: Channel, axis: str, building_class: str, locati
     if location == "foundation" and not 1.0 <= freq <= 100.0:
         notes.append(f"axis {axis}: dominant frequency {freq:.3g} Hz is outside Table 1's 1-100 Hz; the value "
                      "at the nearest end is used")
-    return _jsonable({"ppv_mm_s": ppv, "time_s": channel.start_time + (first + i) / fs, "frequency_hz": freq,
-                      "frequency_method": used, "guideline_mm_s": guideline,
-                      "ratio": None if guideline is None else ppv / guideline})
+    return json_ready({"ppv_mm_s": ppv, "time_s": channel.start_time + (first + i) / fs, "frequency_hz": freq,
+                       "frequency_method": used, "guideline_mm_s": guideline,
+                       "ratio": None if guideline is None else ppv / guideline}, nonfinite_as_none=True)
 
 
 def _zero_crossing_frequency(v: np.ndarray, i: int, fs: float) -> float | None:

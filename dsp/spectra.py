@@ -45,6 +45,7 @@ from typing import Any
 import numpy as np
 from scipy import signal
 
+from ._json import json_ready
 from ._validate import check_choice, check_int, check_number
 from .channel import Channel
 from .errors import SigtuneError
@@ -70,18 +71,6 @@ def _frozen_array(values) -> np.ndarray:
     arr = arr.view()
     arr.flags.writeable = False
     return arr
-
-
-def _jsonable(value):
-    if isinstance(value, np.ndarray):
-        return value.tolist()
-    if isinstance(value, Mapping):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, np.generic):
-        return value.item()
-    return value
 
 
 _LABELS = {"psd": "PSD", "asd": "ASD", "rms": "RMS amplitude", "peak": "peak amplitude"}
@@ -156,7 +145,7 @@ class Spectrum:
         """Return the spectrum as JSON-ready data."""
         return {"kind": "spectrum", "channel": self.channel, "scaling": self.scaling, "unit": self.unit,
                 "frequencies_hz": self.frequencies.tolist(), "values": self.values.tolist(),
-                "settings": _jsonable(self.settings), "notes": list(self.notes)}
+                "settings": json_ready(self.settings), "notes": list(self.notes)}
 
 
 @dataclass(frozen=True, eq=False)
@@ -202,7 +191,7 @@ class Spectrogram:
         return {"kind": "spectrogram", "channel": self.channel, "scaling": self.scaling,
                 "unit": self.unit, "times_s": self.times.tolist(),
                 "frequencies_hz": self.frequencies.tolist(), "values": self.values.tolist(),
-                "settings": _jsonable(self.settings), "notes": list(self.notes)}
+                "settings": json_ready(self.settings), "notes": list(self.notes)}
 
 
 # ----------------------------------------------------------------- set-up

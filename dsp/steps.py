@@ -14,6 +14,7 @@ import dataclasses
 from collections.abc import Iterable, Iterator, Mapping
 from typing import Any, ClassVar
 
+from ._json import json_ready
 from ._version import __version__
 from .channel import Channel, Recording
 from .errors import SigtuneError
@@ -38,16 +39,6 @@ def step_types() -> dict[str, type["Step"]]:
     return dict(_REGISTRY)
 
 
-def _jsonable(value):
-    if isinstance(value, tuple | list):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, Mapping):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if hasattr(value, "item") and callable(value.item):  # numpy scalar
-        return value.item()
-    return value
-
-
 class Step:
     """Base of every processing step (subclasses are frozen dataclasses).
 
@@ -67,14 +58,14 @@ class Step:
         out, info = result if isinstance(result, tuple) else (result, None)
         entry = {**self.to_dict(), "sigtune": __version__}
         if info:
-            entry["info"] = _jsonable(info)
+            entry["info"] = json_ready(info)
         return out.replace(history=channel.history + (entry,))
 
     def to_dict(self) -> dict[str, Any]:
         """Return the step as JSON-ready data: ``{"op": ..., <setting>: <value>, ...}``."""
         data = {"op": self.op}
         for f in dataclasses.fields(self):
-            data[f.name] = _jsonable(getattr(self, f.name))
+            data[f.name] = json_ready(getattr(self, f.name))
         return data
 
     @classmethod
