@@ -289,6 +289,7 @@ def test_guideline_corners_and_interpolation(building_class):
     for f, value in corners:
         assert guideline_velocity(f, building_class) == pytest.approx(value)
     (f10, v10), (f50, v50) = corners[1], corners[2]
+    assert (f10, f50) == (10.0, 50.0)  # the Table's corner frequencies, Hz
     assert guideline_velocity(20.0, building_class) == pytest.approx(v10 + (v50 - v10) * 10 / 40)  # linear
     assert guideline_velocity(250.0, building_class) == pytest.approx(corners[-1][1])  # above 100 Hz
 

@@ -2,7 +2,6 @@
 
 import copy
 import json
-import os
 import shutil
 import warnings
 from pathlib import Path
