@@ -324,7 +324,7 @@ class Filter(Step):
 
     Notes
     -----
-    The record's mean is removed before filtering and added back multiplied by
+    For zero-phase filtering the record's mean is removed first and added back multiplied by
     the filter's DC gain (1 for low-pass and band-stop, 0 for high-pass and
     band-pass, ``10**(-ripple_db/20)`` for an even-order Chebyshev I). That is
     what the filter does to a constant in steady state, so a DC offset causes
