@@ -26,7 +26,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from dsp import Channel  # noqa: E402
 from dsp._atomic import write_text_atomic  # noqa: E402
-from dsp.spectra import band_levels, linear_spectrum, psd, spectrogram  # noqa: E402
+from dsp.bands import band_levels  # noqa: E402
+from dsp.spectra import linear_spectrum, psd, spectrogram  # noqa: E402
 
 FS = 10_000.0
 SIZES = (10**6, 10**7)

@@ -27,6 +27,7 @@ import numpy as np
 from . import evaluation as _evaluation
 from . import motion as _motion
 from . import quality as _quality
+from . import bands as _bands
 from . import spectra as _spectra
 from ._validate import check_choice, check_int, check_number
 from ._version import __version__
@@ -400,7 +401,7 @@ def analyse(channel: Channel, settings: AnalysisSettings | Mapping | None = None
     bands = None
     if settings.band_fraction:
         options = {k: v for k, v in spec_opts.items() if k != "average"}  # band RMS uses the mean PSD
-        bands = _spectra.band_levels(channel, fraction=settings.band_fraction, **options).to_dict()
+        bands = _bands.band_levels(channel, fraction=settings.band_fraction, **options).to_dict()
     summary = {
         "channel": channel.name, "unit": channel.unit, "quantity": channel.quantity, "fs_hz": channel.fs,
         "n_samples": channel.n_samples, "duration_s": channel.duration,

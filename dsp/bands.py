@@ -36,6 +36,8 @@ from ._json import json_ready
 from ._validate import check_choice, check_int, check_number
 from .channel import Channel
 from .errors import SigtuneError
+from .spectra import (_DEFAULT_SEGMENT_S, _MIN_DEFAULT_NPERSEG, DETRENDS, _band_integrals, _default_nperseg,
+                      _frozen_array, _need_channel, _usable_samples, psd)
 
 __all__ = ["BandLevels", "band_levels", "band_rms", "iec_bands", "MIN_BAND_BINS"]
 
@@ -444,12 +446,3 @@ def band_rms(channel: Channel, f_low: float, f_high: float, window="hann",
     mid = math.sqrt(f_low * f_high) if f_low > 0 else f_high / 2
     return BandLevels([mid], [f"{f_low:g}-{f_high:g}"], [f_low], [f_high], [math.sqrt(ms)],
                       channel.unit, "band_rms", 0, channel.name, settings, notes)
-
-
-
-# The PSD machinery lives in dsp.spectra, which re-exports this module's names at its
-# end; importing it last lets either module be imported first without a cycle error.
-from .spectra import (  # noqa: E402
-    _DEFAULT_SEGMENT_S, _MIN_DEFAULT_NPERSEG, DETRENDS, _band_integrals, _default_nperseg,
-    _frozen_array, _need_channel, _usable_samples, psd,
-)

@@ -1,7 +1,7 @@
 """Spectra of a channel: PSD, ASD, linear spectrum, spectrogram and peak list.
 
-Band levels live in :mod:`dsp.bands` and window properties in
-:mod:`dsp.windows`; both are re-exported here.
+Band levels, which build on the PSD here, live in :mod:`dsp.bands` and window
+properties in :mod:`dsp.windows`.
 
 All estimates are Welch's averaged, windowed periodograms computed by
 :func:`scipy.signal.welch` (or :func:`scipy.signal.spectrogram` where each
@@ -49,14 +49,9 @@ from ._json import json_ready
 from ._validate import check_choice, check_int, check_number
 from .channel import Channel
 from .errors import SigtuneError
-from .windows import WINDOWS, WindowProperties, resolve_window, window_properties, window_samples
+from .windows import resolve_window, window_samples
 
-__all__ = [
-    "Spectrum", "Spectrogram", "psd", "asd", "linear_spectrum", "spectrogram", "find_peaks",
-    # re-exported from dsp.windows and dsp.bands until dsp/__init__.py imports those modules
-    "WINDOWS", "WindowProperties", "window_properties", "window_samples",
-    "BandLevels", "band_levels", "band_rms", "iec_bands", "MIN_BAND_BINS",
-]
+__all__ = ["Spectrum", "Spectrogram", "psd", "asd", "linear_spectrum", "spectrogram", "find_peaks"]
 
 DETRENDS = ("none", "constant", "linear")
 AVERAGES = ("mean", "peak")
@@ -637,7 +632,3 @@ def _peak_record(spectrum: Spectrum, k: int, log_mag: np.ndarray, window: np.nda
             "amplitude_unit": spectrum.settings.get("channel_unit", ""), "bin": k,
             "interpolated": bool(interpolated and offset != 0.0)}
 
-
-# Re-export the band levels (dsp/bands.py builds on the PSD above). Imported last so
-# that either module may be imported first: dsp.bands imports this module at its end.
-from .bands import MIN_BAND_BINS, BandLevels, band_levels, band_rms, iec_bands  # noqa: E402

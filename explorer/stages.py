@@ -495,7 +495,7 @@ def bands_of(channel: Channel, snap):
     """Octave or one-third-octave band RMS (None when bands are off), as the summary computes them."""
     if not snap["band_fraction"]:
         return None
-    return dsp.spectra.band_levels(channel, fraction=snap["band_fraction"], window=snap["spectrum_window"],
+    return dsp.bands.band_levels(channel, fraction=snap["band_fraction"], window=snap["spectrum_window"],
                                    segment_s=snap["segment_s"], overlap=snap["overlap"])
 
 

@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 
 from dsp import Channel, SigtuneError
-from dsp.spectra import band_levels, band_rms, iec_bands, psd
+from dsp.bands import band_levels, band_rms, iec_bands
+from dsp.spectra import psd
 
 G = 10 ** (3 / 10)  # IEC 61260-1:2014 base-10 octave ratio
 
