@@ -23,26 +23,12 @@ import numpy as np
 import pytest
 
 from dsp import Channel, SigtuneError
-from dsp.session import MAX_NESTING, MAX_SESSION_BYTES, Session, resolve_source
+from dsp.session import MAX_NESTING, MAX_SESSION_BYTES, Session, _path_text, resolve_source
 
 ROOT = Path(__file__).resolve().parents[1]
 SAMPLE = json.loads((ROOT / "sample_sessions" / "pump_skid_severity.json").read_text(encoding="utf-8"))
 TIMEOUT = pytest.mark.timeout(10)
 OUTCOMES: collections.Counter = collections.Counter()
-_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
-
-
-def _path_text(parts) -> str:
-    """The JSON path as messages write it: ``chain[0].cutoff``, ``setup["*"].unit``."""
-    text = ""
-    for part in parts:
-        if isinstance(part, int):
-            text += f"[{part}]"
-        elif _IDENTIFIER.match(part):
-            text += f".{part}" if text else part
-        else:
-            text += f"[{json.dumps(part)}]"
-    return text
 
 
 def _paths(value, prefix=()):
