@@ -134,23 +134,19 @@ def variant_batch(folder: Path, out: Path, workers: int, dask_default_env: bool,
 
 
 def serve_cluster(workers: int) -> None:
-    """Keep a local cluster running, as a site would: print its address, stop when stdin closes."""
-    import logging
+    """Keep a local cluster running, as a site would: print its address, stop when stdin closes.
 
+    The cluster ``run_batch`` starts itself (``dsp.campaign._Cluster``), its workers preloading sigtune.
+    """
     import dask
-    from dask.distributed import Client, LocalCluster
 
     import dsp.campaign
 
-    config = {**dsp.campaign.WORKER_CONFIG, "distributed.worker.preload": ["dsp.campaign"]}
-    with dask.config.set(config):
-        cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
-                               dashboard_address=None, silence_logs=logging.ERROR)
-    with Client(cluster) as client:
+    with dask.config.set({"distributed.worker.preload": ["dsp.campaign"]}), \
+            dsp.campaign._Cluster(workers, None) as client:
         client.wait_for_workers(workers)
-    print(json.dumps({"address": cluster.scheduler_address}), flush=True)
-    sys.stdin.read()
-    cluster.close()
+        print(json.dumps({"address": client.scheduler.address}), flush=True)
+        sys.stdin.read()
 
 
 def _with_running_cluster(workers: int, args: list[str]) -> dict:
